@@ -1,0 +1,1101 @@
+// SqliteArchive: the archive on one SQLite file through SQLiteCpp. Every SQLite failure becomes
+// a StoreError naming the file; all SQL is fixed text with bound parameters.
+#include "store/sqlite_archive.h"
+
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <array>
+#include <cerrno>
+#include <chrono>
+#include <cmath>
+#include <csignal>
+#include <ctime>
+#include <fstream>
+#include <map>
+#include <unordered_map>
+
+#include <SQLiteCpp/SQLiteCpp.h>
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+#include <sqlite3.h>
+
+#include "core/errors.h"
+#include "core/version.h"
+#include "store/canonical_json.h"
+#include "store/schema.h"
+#include "store/uuid.h"
+
+namespace ampbench::store {
+
+namespace {
+
+std::string utc_iso(double unix_s) {
+    const auto seconds = static_cast<std::time_t>(std::floor(unix_s));
+    std::tm tm{};
+    gmtime_r(&seconds, &tm);
+    std::array<char, 32> text{};
+    std::strftime(text.data(), text.size(), "%Y-%m-%dT%H:%M:%SZ", &tm);
+    return text.data();
+}
+
+std::string this_host() {
+    std::array<char, 256> name{};
+    if (gethostname(name.data(), name.size() - 1) != 0) return "unknown-host";
+    return name.data();
+}
+
+// A pid is alive when signal 0 can be sent to it (EPERM: it exists but is not ours).
+bool pid_alive(std::int64_t pid) {
+    if (pid <= 0) return false;
+    if (::kill(static_cast<pid_t>(pid), 0) == 0) return true;
+    return errno == EPERM;
+}
+
+void bind_optional(SQLite::Statement& st, int index, const std::optional<double>& value) {
+    if (value)
+        st.bind(index, *value);
+    else
+        st.bind(index);
+}
+
+void bind_optional(SQLite::Statement& st, int index, const std::optional<std::int64_t>& value) {
+    if (value)
+        st.bind(index, *value);
+    else
+        st.bind(index);
+}
+
+void bind_text_or_null(SQLite::Statement& st, int index, const std::string& value) {
+    if (value.empty())
+        st.bind(index);
+    else
+        st.bind(index, value);
+}
+
+std::optional<double> optional_double(const SQLite::Column& column) {
+    if (column.isNull()) return std::nullopt;
+    return column.getDouble();
+}
+
+std::optional<std::int64_t> optional_int(const SQLite::Column& column) {
+    if (column.isNull()) return std::nullopt;
+    return column.getInt64();
+}
+
+std::string text(const SQLite::Column& column) {
+    if (column.isNull()) return {};
+    return column.getString();
+}
+
+// Reads the SQLite file header so a foreign or truncated file gets a precise message before
+// SQLite is asked anything (https://www.sqlite.org/fileformat.html, "The Database Header").
+void check_file_header(const std::string& path) {
+    struct stat info {};
+    if (::stat(path.c_str(), &info) != 0 || info.st_size == 0) return;  // new or empty: created
+    if (!S_ISREG(info.st_mode))
+        throw StoreError(fmt::format("archive {}: not a regular file", path));
+    std::ifstream in(path, std::ios::binary);
+    if (!in) throw StoreError(fmt::format("archive {}: cannot open for reading", path));
+    std::array<unsigned char, 100> header{};
+    in.read(reinterpret_cast<char*>(header.data()), header.size());
+    const auto got = in.gcount();
+    static constexpr char magic[] = "SQLite format 3";  // with its terminating NUL: 16 bytes
+    if (got < 16 || !std::equal(magic, magic + 16, header.begin()))
+        throw StoreError(fmt::format("archive {}: not an ampbench archive (not a SQLite file)",
+                                     path));
+    if (got < 100)
+        throw StoreError(fmt::format("archive {}: damaged (truncated inside its header)", path));
+    auto be32 = [&](size_t at) {
+        return (std::uint32_t{header[at]} << 24) | (std::uint32_t{header[at + 1]} << 16) |
+               (std::uint32_t{header[at + 2]} << 8) | std::uint32_t{header[at + 3]};
+    };
+    std::uint32_t page_size = (std::uint32_t{header[16]} << 8) | header[17];
+    if (page_size == 1) page_size = 65536;
+    const std::uint32_t pages = be32(28);
+    // The page count is trustworthy only when its version-valid-for matches the change counter.
+    const bool count_valid = pages != 0 && be32(92) == be32(24);
+    if (count_valid &&
+        static_cast<std::uint64_t>(info.st_size) < std::uint64_t{pages} * page_size)
+        throw StoreError(fmt::format(
+            "archive {}: damaged (file is {} bytes, its header says {} pages of {} bytes; "
+            "truncated?)",
+            path, info.st_size, pages, page_size));
+}
+
+const char* const session_columns =
+    "s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, s.operator, "
+    "s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes";
+
+Session read_session(SQLite::Statement& st, int first = 0) {
+    Session s;
+    s.id = st.getColumn(first + 0).getInt64();
+    s.uuid = text(st.getColumn(first + 1));
+    s.board_serial = text(st.getColumn(first + 2));
+    s.kind = session_kind_from(text(st.getColumn(first + 3)));
+    s.status = session_status_from(text(st.getColumn(first + 4)));
+    s.started_utc = text(st.getColumn(first + 5));
+    s.finished_utc = text(st.getColumn(first + 6));
+    s.operator_name = text(st.getColumn(first + 7));
+    s.host = text(st.getColumn(first + 8));
+    s.pid = st.getColumn(first + 9).getInt64();
+    s.heartbeat_unix_s = st.getColumn(first + 10).getDouble();
+    s.bench_file = text(st.getColumn(first + 11));
+    s.software_version = text(st.getColumn(first + 12));
+    s.notes = text(st.getColumn(first + 13));
+    return s;
+}
+
+const char* const point_columns =
+    "id, uuid, sequence, plan_index, freq_hz, in_amplitude_v, in_amplitude_sd_v, in_phase_deg, "
+    "in_phase_sd_deg, out_amplitude_v, out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, "
+    "gain_db, gain_db_sd, phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc, "
+    "superseded_by";
+
+Point read_point(SQLite::Statement& st) {
+    Point p;
+    p.id = st.getColumn(0).getInt64();
+    p.uuid = text(st.getColumn(1));
+    p.sequence = st.getColumn(2).getInt64();
+    p.plan_index = optional_int(st.getColumn(3));
+    p.freq_hz = st.getColumn(4).getDouble();
+    p.in_amplitude_v = optional_double(st.getColumn(5));
+    p.in_amplitude_sd_v = optional_double(st.getColumn(6));
+    p.in_phase_deg = optional_double(st.getColumn(7));
+    p.in_phase_sd_deg = optional_double(st.getColumn(8));
+    p.out_amplitude_v = optional_double(st.getColumn(9));
+    p.out_amplitude_sd_v = optional_double(st.getColumn(10));
+    p.out_phase_deg = optional_double(st.getColumn(11));
+    p.out_phase_sd_deg = optional_double(st.getColumn(12));
+    p.gain_db = st.getColumn(13).getDouble();
+    p.gain_db_sd = optional_double(st.getColumn(14));
+    p.phase_deg = optional_double(st.getColumn(15));
+    p.phase_deg_sd = optional_double(st.getColumn(16));
+    p.thd_pct = optional_double(st.getColumn(17));
+    p.flags = text(st.getColumn(18));
+    p.settings_json = text(st.getColumn(19));
+    p.taken_utc = text(st.getColumn(20));
+    p.superseded_by = optional_int(st.getColumn(21));
+    return p;
+}
+
+const char* const fit_columns =
+    "id, uuid, session_id, kind, model, params_json, report_json, midband_gain_db, f_low_hz, "
+    "f_high_hz, created_utc";
+
+FitRecord read_fit(SQLite::Statement& st) {
+    FitRecord f;
+    f.id = st.getColumn(0).getInt64();
+    f.uuid = text(st.getColumn(1));
+    f.session_id = st.getColumn(2).getInt64();
+    f.kind = text(st.getColumn(3));
+    f.model = text(st.getColumn(4));
+    f.params_json = text(st.getColumn(5));
+    f.report_json = text(st.getColumn(6));
+    f.midband_gain_db = optional_double(st.getColumn(7));
+    f.f_low_hz = optional_double(st.getColumn(8));
+    f.f_high_hz = optional_double(st.getColumn(9));
+    f.created_utc = text(st.getColumn(10));
+    return f;
+}
+
+const char* const lot_columns =
+    "id, uuid, lot_code, plan_json, quantity, supplier, status, session_id, created_utc";
+
+Lot read_lot(SQLite::Statement& st) {
+    Lot l;
+    l.id = st.getColumn(0).getInt64();
+    l.uuid = text(st.getColumn(1));
+    l.lot_code = text(st.getColumn(2));
+    l.plan_json = text(st.getColumn(3));
+    l.quantity = st.getColumn(4).getInt64();
+    l.supplier = text(st.getColumn(5));
+    l.status = text(st.getColumn(6));
+    l.session_id = optional_int(st.getColumn(7));
+    l.created_utc = text(st.getColumn(8));
+    return l;
+}
+
+const char* const device_columns =
+    "id, uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, vbe_sd_v, ic_a, ic_sd_a, "
+    "vce_v, vce_sd_v, passed, skipped_reason, replacement_of";
+
+Device read_device(SQLite::Statement& st) {
+    Device d;
+    d.id = st.getColumn(0).getInt64();
+    d.uuid = text(st.getColumn(1));
+    d.lot_id = st.getColumn(2).getInt64();
+    d.index = st.getColumn(3).getInt64();
+    d.readings_json = text(st.getColumn(4));
+    d.hfe = optional_double(st.getColumn(5));
+    d.hfe_sd = optional_double(st.getColumn(6));
+    d.vbe_v = optional_double(st.getColumn(7));
+    d.vbe_sd_v = optional_double(st.getColumn(8));
+    d.ic_a = optional_double(st.getColumn(9));
+    d.ic_sd_a = optional_double(st.getColumn(10));
+    d.vce_v = optional_double(st.getColumn(11));
+    d.vce_sd_v = optional_double(st.getColumn(12));
+    if (!st.getColumn(13).isNull()) d.passed = st.getColumn(13).getInt() != 0;
+    d.skipped_reason = text(st.getColumn(14));
+    d.replacement_of = optional_int(st.getColumn(15));
+    return d;
+}
+
+const char* const history_sql =
+    "SELECT s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, "
+    "s.operator, s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes, "
+    "(SELECT count(*) FROM points p WHERE p.session_id = s.id AND p.superseded_by IS NULL), "
+    "f.midband_gain_db, f.f_low_hz, f.f_high_hz "
+    "FROM boards b JOIN sessions s ON s.board_id = b.id "
+    "LEFT JOIN fits f ON f.id = (SELECT id FROM fits WHERE session_id = s.id "
+    "ORDER BY id DESC LIMIT 1) "
+    "WHERE b.serial = ? "
+    "ORDER BY s.started_utc DESC, s.id DESC";
+
+}  // namespace
+
+const char* to_string(SessionKind kind) {
+    switch (kind) {
+        case SessionKind::sweep: return "sweep";
+        case SessionKind::dc: return "dc";
+        case SessionKind::match: return "match";
+        case SessionKind::lot: return "lot";
+        case SessionKind::import: return "import";
+    }
+    return "sweep";
+}
+
+const char* to_string(SessionStatus status) {
+    switch (status) {
+        case SessionStatus::running: return "running";
+        case SessionStatus::complete: return "complete";
+        case SessionStatus::interrupted: return "interrupted";
+        case SessionStatus::aborted: return "aborted";
+    }
+    return "running";
+}
+
+SessionKind session_kind_from(const std::string& word) {
+    for (auto k : {SessionKind::sweep, SessionKind::dc, SessionKind::match, SessionKind::lot,
+                   SessionKind::import})
+        if (word == to_string(k)) return k;
+    throw StoreError(fmt::format("unknown session kind '{}' in the archive", word));
+}
+
+SessionStatus session_status_from(const std::string& word) {
+    for (auto s : {SessionStatus::running, SessionStatus::complete, SessionStatus::interrupted,
+                   SessionStatus::aborted})
+        if (word == to_string(s)) return s;
+    throw StoreError(fmt::format("unknown session status '{}' in the archive", word));
+}
+
+struct SqliteArchive::Impl {
+    std::string path;
+    ArchiveOptions options;
+    std::string host;
+    std::int64_t pid = 0;
+    int version = 0;
+    std::unique_ptr<SQLite::Database> db;
+    std::unordered_map<std::string, std::unique_ptr<SQLite::Statement>> statements;
+
+    // A prepared statement, reset and with its bindings cleared.
+    SQLite::Statement& query(const std::string& sql) {
+        auto& slot = statements[sql];
+        if (!slot) slot = std::make_unique<SQLite::Statement>(*db, sql);
+        slot->reset();
+        slot->clearBindings();
+        return *slot;
+    }
+
+    double now() const {
+        if (options.clock_unix_s) return options.clock_unix_s();
+        using namespace std::chrono;
+        return duration<double>(system_clock::now().time_since_epoch()).count();
+    }
+
+    [[noreturn]] void fail(const SQLite::Exception& e) const {
+        const int code = e.getErrorCode() & 0xff;
+        if (code == SQLITE_BUSY || code == SQLITE_LOCKED)
+            throw StoreError(fmt::format(
+                "archive {}: busy for more than {} ms (another station is writing)", path,
+                options.busy_timeout_ms));
+        if (code == SQLITE_NOTADB)
+            throw StoreError(fmt::format("archive {}: not an ampbench archive ({})", path,
+                                         e.what()));
+        if (code == SQLITE_CORRUPT)
+            throw StoreError(fmt::format("archive {}: damaged ({})", path, e.what()));
+        throw StoreError(fmt::format("archive {}: {}", path, e.what()));
+    }
+
+    // A statement left mid-result would hold its read snapshot open, and a later BEGIN
+    // IMMEDIATE on a stale snapshot fails at once instead of waiting: reset them all.
+    void reset_statements() noexcept {
+        for (auto& [sql, st] : statements)
+            if (st) st->tryReset();
+    }
+
+    template <class F>
+    auto guarded(F&& f) -> decltype(f()) {
+        struct ResetOnExit {
+            Impl& impl;
+            ~ResetOnExit() { impl.reset_statements(); }
+        } reset_on_exit{*this};
+        try {
+            return f();
+        } catch (const SQLite::Exception& e) {
+            fail(e);
+        }
+    }
+
+    SQLite::Transaction write_transaction() {
+        return SQLite::Transaction(*db, SQLite::TransactionBehavior::IMMEDIATE);
+    }
+
+    void open() {
+        check_file_header(path);
+        db = std::make_unique<SQLite::Database>(
+            path, SQLite::OPEN_READWRITE | SQLite::OPEN_CREATE, options.busy_timeout_ms);
+        db->exec("PRAGMA foreign_keys = ON");
+        // A point is durable once append_point returns, even against power loss.
+        db->exec("PRAGMA synchronous = FULL");
+        const std::string mode = db->execAndGet("PRAGMA journal_mode = WAL").getString();
+        if (mode != "wal")
+            throw StoreError(fmt::format(
+                "archive {}: cannot switch to the WAL journal (got '{}'); is it on a network "
+                "file system?",
+                path, mode));
+        migrate();
+    }
+
+    int read_version() {
+        auto& tables = query(
+            "SELECT count(*), coalesce(sum(name = 'schema_version'), 0) FROM sqlite_master "
+            "WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
+        tables.executeStep();
+        const auto count = tables.getColumn(0).getInt64();
+        const auto has_version = tables.getColumn(1).getInt64();
+        tables.reset();
+        if (count == 0) return 0;
+        if (!has_version)
+            throw StoreError(fmt::format(
+                "archive {}: not an ampbench archive (a SQLite file without schema_version)",
+                path));
+        return static_cast<int>(db->execAndGet("SELECT coalesce(max(version), 0) FROM schema_version")
+                                    .getInt64());
+    }
+
+    void refuse_newer(int found) const {
+        if (found > current_schema_version())
+            throw StoreError(fmt::format(
+                "archive {}: written by a newer ampbench (schema version {}; this build "
+                "reads up to {}); upgrade ampbench to open it",
+                path, found, current_schema_version()));
+    }
+
+    void migrate() {
+        version = read_version();
+        refuse_newer(version);
+        if (version == current_schema_version()) return;
+        auto txn = write_transaction();
+        version = read_version();  // another station may have migrated meanwhile
+        refuse_newer(version);
+        for (const auto& m : migrations()) {
+            if (m.version <= version) continue;
+            db->exec(m.sql);
+            auto& st = query("INSERT INTO schema_version(version, applied_utc) VALUES (?, ?)");
+            st.bind(1, m.version);
+            st.bind(2, utc_iso(now()));
+            st.exec();
+            version = m.version;
+        }
+        txn.commit();
+    }
+
+    bool is_stale(const std::string& session_host, std::int64_t session_pid,
+                  double heartbeat_s) const {
+        return heartbeat_s < now() - options.stale_after_s && session_host == host &&
+               !pid_alive(session_pid);
+    }
+
+    int mark_stale() {
+        struct Candidate {
+            std::int64_t id;
+            std::string host;
+            std::int64_t pid;
+            double heartbeat_s;
+        };
+        auto find = [&] {
+            std::vector<Candidate> found;
+            auto& st = query(
+                "SELECT id, host, pid, heartbeat_unix_s FROM sessions "
+                "WHERE status = 'running' AND heartbeat_unix_s < ?");
+            st.bind(1, now() - options.stale_after_s);
+            while (st.executeStep())
+                found.push_back({st.getColumn(0).getInt64(), text(st.getColumn(1)),
+                                 st.getColumn(2).getInt64(), st.getColumn(3).getDouble()});
+            std::erase_if(found, [&](const Candidate& c) {
+                return !is_stale(c.host, c.pid, c.heartbeat_s);
+            });
+            return found;
+        };
+        // Look first without the write lock: most opens find nothing to do.
+        if (find().empty()) return 0;
+        auto txn = write_transaction();
+        int marked = 0;
+        for (const auto& c : find()) {
+            auto& st = query(
+                "UPDATE sessions SET status = 'interrupted' "
+                "WHERE id = ? AND status = 'running' AND heartbeat_unix_s = ?");
+            st.bind(1, c.id);
+            st.bind(2, c.heartbeat_s);
+            marked += st.exec();
+        }
+        txn.commit();
+        return marked;
+    }
+
+    std::optional<Board> find_board(const std::string& serial) {
+        auto& st = query(
+            "SELECT id, serial, design_address, notes, created_utc FROM boards WHERE serial = ?");
+        st.bind(1, serial);
+        if (!st.executeStep()) return std::nullopt;
+        Board b;
+        b.id = st.getColumn(0).getInt64();
+        b.serial = text(st.getColumn(1));
+        b.design_address = text(st.getColumn(2));
+        b.notes = text(st.getColumn(3));
+        b.created_utc = text(st.getColumn(4));
+        return b;
+    }
+
+    // Inside a write transaction.
+    Board ensure_board_locked(const std::string& serial, const std::string& design_address,
+                              const std::string& notes) {
+        if (serial.empty()) throw StoreError(fmt::format("archive {}: empty board serial", path));
+        if (!design_address.empty()) {
+            auto& d = query("SELECT 1 FROM designs WHERE address = ?");
+            d.bind(1, design_address);
+            if (!d.executeStep())
+                throw StoreError(fmt::format("archive {}: design {} is not in the archive", path,
+                                             design_address));
+        }
+        auto& insert = query(
+            "INSERT INTO boards(serial, design_address, notes, created_utc) VALUES (?, ?, ?, ?) "
+            "ON CONFLICT(serial) DO NOTHING");
+        insert.bind(1, serial);
+        bind_text_or_null(insert, 2, design_address);
+        insert.bind(3, notes);
+        insert.bind(4, utc_iso(now()));
+        if (insert.exec() == 0) {
+            if (!design_address.empty()) {
+                auto& st = query("UPDATE boards SET design_address = ? WHERE serial = ?");
+                st.bind(1, design_address);
+                st.bind(2, serial);
+                st.exec();
+            }
+            if (!notes.empty()) {
+                auto& st = query("UPDATE boards SET notes = ? WHERE serial = ?");
+                st.bind(1, notes);
+                st.bind(2, serial);
+                st.exec();
+            }
+        }
+        return *find_board(serial);
+    }
+
+    std::optional<Session> find_session(std::int64_t id) {
+        auto& st = query(std::string("SELECT ") + session_columns +
+                         " FROM sessions s JOIN boards b ON b.id = s.board_id WHERE s.id = ?");
+        st.bind(1, id);
+        if (!st.executeStep()) return std::nullopt;
+        return read_session(st);
+    }
+
+    Session require_session(std::int64_t id) {
+        auto s = find_session(id);
+        if (!s) throw StoreError(fmt::format("archive {}: no session {}", path, id));
+        return *s;
+    }
+
+    std::vector<PlanPoint> read_plan(std::int64_t session_id) {
+        std::vector<PlanPoint> plan;
+        auto& st = query(
+            "SELECT plan_index, freq_hz, adaptive FROM plan_points WHERE session_id = ? "
+            "ORDER BY plan_index");
+        st.bind(1, session_id);
+        while (st.executeStep())
+            plan.push_back({st.getColumn(0).getInt64(), st.getColumn(1).getDouble(),
+                            st.getColumn(2).getInt() != 0});
+        return plan;
+    }
+
+    std::vector<Point> read_points(std::int64_t session_id, bool current_only) {
+        std::vector<Point> points;
+        std::string sql = std::string("SELECT ") + point_columns +
+                          " FROM points WHERE session_id = ?" +
+                          (current_only ? " AND superseded_by IS NULL" : "") +
+                          " ORDER BY sequence";
+        auto& st = query(sql);
+        st.bind(1, session_id);
+        while (st.executeStep()) points.push_back(read_point(st));
+        return points;
+    }
+
+    std::vector<InstrumentRecord> read_instruments(std::int64_t session_id) {
+        std::vector<InstrumentRecord> out;
+        auto& st = query(
+            "SELECT role, identity, asset, uri, cal_due, certificate, settings_json "
+            "FROM instruments WHERE session_id = ? ORDER BY id");
+        st.bind(1, session_id);
+        while (st.executeStep())
+            out.push_back({text(st.getColumn(0)), text(st.getColumn(1)), text(st.getColumn(2)),
+                           text(st.getColumn(3)), text(st.getColumn(4)), text(st.getColumn(5)),
+                           text(st.getColumn(6))});
+        return out;
+    }
+
+    std::vector<ProbeRecord> read_probes(std::int64_t session_id) {
+        std::vector<ProbeRecord> out;
+        auto& st = query(
+            "SELECT name, channel, asset, ratio, cal_due, certificate FROM probes "
+            "WHERE session_id = ? ORDER BY id");
+        st.bind(1, session_id);
+        while (st.executeStep())
+            out.push_back({text(st.getColumn(0)), text(st.getColumn(1)), text(st.getColumn(2)),
+                           st.getColumn(3).getDouble(), text(st.getColumn(4)),
+                           text(st.getColumn(5))});
+        return out;
+    }
+
+    // Inside a write transaction; the session must be running.
+    void require_running(std::int64_t session_id) {
+        auto& st = query("SELECT status FROM sessions WHERE id = ?");
+        st.bind(1, session_id);
+        if (!st.executeStep())
+            throw StoreError(fmt::format("archive {}: no session {}", path, session_id));
+        const std::string status = text(st.getColumn(0));
+        if (status != "running")
+            throw StoreError(fmt::format(
+                "archive {}: session {} is {}; resume it before adding readings", path,
+                session_id, status));
+    }
+
+    // Inside a write transaction.
+    Point insert_point(std::int64_t session_id, const Point& in) {
+        if (!std::isfinite(in.freq_hz) || !std::isfinite(in.gain_db))
+            throw StoreError(fmt::format(
+                "archive {}: a reading needs a finite freq_hz and gain_db (got {} Hz, {} dB)",
+                path, in.freq_hz, in.gain_db));
+        Point p = in;
+        p.superseded_by.reset();
+        p.uuid = make_uuid_v4();
+        if (p.taken_utc.empty()) p.taken_utc = utc_iso(now());
+        auto& seq = query(
+            "SELECT coalesce(max(sequence), 0) + 1 FROM points WHERE session_id = ?");
+        seq.bind(1, session_id);
+        seq.executeStep();
+        p.sequence = seq.getColumn(0).getInt64();
+        seq.reset();
+        auto& next_id = query("SELECT coalesce(max(id), 0) + 1 FROM points");
+        next_id.executeStep();
+        p.id = next_id.getColumn(0).getInt64();
+        next_id.reset();
+        if (p.plan_index) {
+            auto& planned = query(
+                "SELECT 1 FROM plan_points WHERE session_id = ? AND plan_index = ?");
+            planned.bind(1, session_id);
+            planned.bind(2, *p.plan_index);
+            if (!planned.executeStep())
+                throw StoreError(fmt::format("archive {}: session {} has no planned point {}",
+                                             path, session_id, *p.plan_index));
+            // A retake: the earlier reading stays, marked as replaced by this one.
+            auto& supersede = query(
+                "UPDATE points SET superseded_by = ? "
+                "WHERE session_id = ? AND plan_index = ? AND superseded_by IS NULL");
+            supersede.bind(1, p.id);
+            supersede.bind(2, session_id);
+            supersede.bind(3, *p.plan_index);
+            supersede.exec();
+        }
+        auto& st = query(
+            "INSERT INTO points(id, uuid, session_id, sequence, plan_index, freq_hz, "
+            "in_amplitude_v, in_amplitude_sd_v, in_phase_deg, in_phase_sd_deg, out_amplitude_v, "
+            "out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, gain_db, gain_db_sd, "
+            "phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+        st.bind(1, p.id);
+        st.bind(2, p.uuid);
+        st.bind(3, session_id);
+        st.bind(4, p.sequence);
+        bind_optional(st, 5, p.plan_index);
+        st.bind(6, p.freq_hz);
+        bind_optional(st, 7, p.in_amplitude_v);
+        bind_optional(st, 8, p.in_amplitude_sd_v);
+        bind_optional(st, 9, p.in_phase_deg);
+        bind_optional(st, 10, p.in_phase_sd_deg);
+        bind_optional(st, 11, p.out_amplitude_v);
+        bind_optional(st, 12, p.out_amplitude_sd_v);
+        bind_optional(st, 13, p.out_phase_deg);
+        bind_optional(st, 14, p.out_phase_sd_deg);
+        st.bind(15, p.gain_db);
+        bind_optional(st, 16, p.gain_db_sd);
+        bind_optional(st, 17, p.phase_deg);
+        bind_optional(st, 18, p.phase_deg_sd);
+        bind_optional(st, 19, p.thd_pct);
+        st.bind(20, p.flags);
+        st.bind(21, p.settings_json);
+        st.bind(22, p.taken_utc);
+        st.exec();
+        return p;
+    }
+
+    void beat(std::int64_t session_id) {
+        auto& st = query("UPDATE sessions SET heartbeat_unix_s = ? WHERE id = ?");
+        st.bind(1, now());
+        st.bind(2, session_id);
+        st.exec();
+    }
+
+    std::vector<SessionSummary> summaries(const std::string& sql, const std::string& serial) {
+        std::vector<SessionSummary> out;
+        auto& st = query(sql);
+        st.bind(1, serial);
+        while (st.executeStep()) {
+            SessionSummary s;
+            s.session = read_session(st);
+            s.point_count = st.getColumn(14).getInt64();
+            s.midband_gain_db = optional_double(st.getColumn(15));
+            s.f_low_hz = optional_double(st.getColumn(16));
+            s.f_high_hz = optional_double(st.getColumn(17));
+            out.push_back(std::move(s));
+        }
+        for (auto& s : out) s.instruments = read_instruments(s.session.id);
+        return out;
+    }
+};
+
+SqliteArchive::SqliteArchive(const std::string& path, const ArchiveOptions& options)
+    : impl_(std::make_unique<Impl>()) {
+    impl_->path = path;
+    impl_->options = options;
+    impl_->host = options.host.empty() ? this_host() : options.host;
+    impl_->pid = options.pid > 0 ? options.pid : static_cast<std::int64_t>(::getpid());
+    impl_->guarded([&] {
+        impl_->open();
+        impl_->mark_stale();
+    });
+}
+
+SqliteArchive::~SqliteArchive() = default;
+
+const char* SqliteArchive::history_query() { return history_sql; }
+
+const std::string& SqliteArchive::location() const { return impl_->path; }
+
+int SqliteArchive::schema_version() const { return impl_->version; }
+
+DesignRecord SqliteArchive::put_design(const std::string& design_json, const std::string& origin) {
+    DesignRecord d;
+    d.canonical_json = canonical_json(design_json, origin);
+    d.address = content_address(d.canonical_json, origin);
+    {
+        const auto parsed = nlohmann::json::parse(d.canonical_json);
+        if (parsed.is_object() && parsed.contains("name") && parsed["name"].is_string())
+            d.name = parsed["name"].get<std::string>();
+    }
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        auto& st = impl_->query(
+            "INSERT INTO designs(address, name, canonical_json, created_utc) VALUES (?, ?, ?, ?) "
+            "ON CONFLICT(address) DO NOTHING");
+        st.bind(1, d.address);
+        st.bind(2, d.name);
+        st.bind(3, d.canonical_json);
+        st.bind(4, utc_iso(impl_->now()));
+        st.exec();
+        txn.commit();
+        return *design(d.address);
+    });
+}
+
+std::optional<DesignRecord> SqliteArchive::design(const std::string& address) {
+    return impl_->guarded([&]() -> std::optional<DesignRecord> {
+        auto& st = impl_->query(
+            "SELECT address, name, canonical_json, created_utc FROM designs WHERE address = ?");
+        st.bind(1, address);
+        if (!st.executeStep()) return std::nullopt;
+        return DesignRecord{text(st.getColumn(0)), text(st.getColumn(1)), text(st.getColumn(2)),
+                            text(st.getColumn(3))};
+    });
+}
+
+Board SqliteArchive::ensure_board(const std::string& serial, const std::string& design_address,
+                                  const std::string& notes) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        Board b = impl_->ensure_board_locked(serial, design_address, notes);
+        txn.commit();
+        return b;
+    });
+}
+
+std::optional<Board> SqliteArchive::board(const std::string& serial) {
+    return impl_->guarded([&] { return impl_->find_board(serial); });
+}
+
+std::vector<BoardSummary> SqliteArchive::boards() {
+    return impl_->guarded([&] {
+        std::vector<BoardSummary> out;
+        auto& st = impl_->query(
+            "SELECT id, serial, design_address, notes, created_utc FROM boards ORDER BY serial");
+        while (st.executeStep()) {
+            BoardSummary s;
+            s.board = {st.getColumn(0).getInt64(), text(st.getColumn(1)), text(st.getColumn(2)),
+                       text(st.getColumn(3)), text(st.getColumn(4))};
+            out.push_back(std::move(s));
+        }
+        for (auto& s : out) {
+            auto& count = impl_->query("SELECT count(*) FROM sessions WHERE board_id = ?");
+            count.bind(1, s.board.id);
+            count.executeStep();
+            s.session_count = count.getColumn(0).getInt64();
+            auto latest = impl_->summaries(std::string(history_sql) + " LIMIT 1", s.board.serial);
+            if (!latest.empty()) s.latest = std::move(latest.front());
+        }
+        return out;
+    });
+}
+
+Session SqliteArchive::begin_session(const NewSession& in) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        const Board b = impl_->ensure_board_locked(in.board_serial, {}, {});
+        const double now = impl_->now();
+        auto& st = impl_->query(
+            "INSERT INTO sessions(uuid, board_id, kind, status, started_utc, operator, host, pid, "
+            "heartbeat_unix_s, bench_file, software_version, notes) "
+            "VALUES (?, ?, ?, 'running', ?, ?, ?, ?, ?, ?, ?, ?)");
+        st.bind(1, make_uuid_v4());
+        st.bind(2, b.id);
+        st.bind(3, to_string(in.kind));
+        st.bind(4, utc_iso(now));
+        st.bind(5, in.operator_name);
+        st.bind(6, impl_->host);
+        st.bind(7, impl_->pid);
+        st.bind(8, now);
+        st.bind(9, in.bench_file);
+        st.bind(10, software_version());
+        st.bind(11, in.notes);
+        st.exec();
+        const std::int64_t id = impl_->db->getLastInsertRowid();
+        for (const auto& i : in.instruments) {
+            auto& ins = impl_->query(
+                "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
+                "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
+            ins.bind(1, id);
+            ins.bind(2, i.role);
+            ins.bind(3, i.identity);
+            ins.bind(4, i.asset);
+            ins.bind(5, i.uri);
+            ins.bind(6, i.cal_due);
+            ins.bind(7, i.certificate);
+            ins.bind(8, i.settings_json);
+            ins.exec();
+        }
+        for (const auto& p : in.probes) {
+            auto& pr = impl_->query(
+                "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
+                "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
+            pr.bind(1, id);
+            pr.bind(2, p.name);
+            pr.bind(3, p.channel);
+            pr.bind(4, p.asset);
+            pr.bind(5, p.ratio);
+            pr.bind(6, p.cal_due);
+            pr.bind(7, p.certificate);
+            pr.exec();
+        }
+        txn.commit();
+        return impl_->require_session(id);
+    });
+}
+
+std::optional<Session> SqliteArchive::session(std::int64_t id) {
+    return impl_->guarded([&] { return impl_->find_session(id); });
+}
+
+void SqliteArchive::heartbeat(std::int64_t session_id) {
+    impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        impl_->beat(session_id);
+        txn.commit();
+    });
+}
+
+void SqliteArchive::finish_session(std::int64_t session_id, SessionStatus status) {
+    if (status == SessionStatus::running)
+        throw StoreError(fmt::format("archive {}: a session cannot finish as running",
+                                     impl_->path));
+    impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        auto& st = impl_->query(
+            "UPDATE sessions SET status = ?, finished_utc = ?, heartbeat_unix_s = ? WHERE id = ?");
+        const double now = impl_->now();
+        st.bind(1, to_string(status));
+        st.bind(2, utc_iso(now));
+        st.bind(3, now);
+        st.bind(4, session_id);
+        if (st.exec() != 1)
+            throw StoreError(fmt::format("archive {}: no session {}", impl_->path, session_id));
+        txn.commit();
+    });
+}
+
+int SqliteArchive::mark_stale_sessions() {
+    return impl_->guarded([&] { return impl_->mark_stale(); });
+}
+
+ResumeState SqliteArchive::resume_session(std::int64_t session_id) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        const Session s = impl_->require_session(session_id);
+        if (s.status == SessionStatus::running &&
+            !impl_->is_stale(s.host, s.pid, s.heartbeat_unix_s))
+            throw StoreError(fmt::format(
+                "archive {}: session {} is still running (pid {} on {})", impl_->path,
+                session_id, s.pid, s.host));
+        if (s.status == SessionStatus::complete || s.status == SessionStatus::aborted)
+            throw StoreError(fmt::format("archive {}: session {} is {}; nothing to resume",
+                                         impl_->path, session_id, to_string(s.status)));
+        auto& st = impl_->query(
+            "UPDATE sessions SET status = 'running', finished_utc = NULL, host = ?, pid = ?, "
+            "heartbeat_unix_s = ? WHERE id = ?");
+        st.bind(1, impl_->host);
+        st.bind(2, impl_->pid);
+        st.bind(3, impl_->now());
+        st.bind(4, session_id);
+        st.exec();
+        txn.commit();
+        ResumeState state;
+        state.session = impl_->require_session(session_id);
+        state.plan = impl_->read_plan(session_id);
+        state.points = impl_->read_points(session_id, true);
+        return state;
+    });
+}
+
+void SqliteArchive::add_plan_points(std::int64_t session_id, const std::vector<PlanPoint>& plan) {
+    impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        impl_->require_running(session_id);
+        const std::string now = utc_iso(impl_->now());
+        for (const auto& p : plan) {
+            auto& st = impl_->query(
+                "INSERT INTO plan_points(session_id, plan_index, freq_hz, adaptive, created_utc) "
+                "VALUES (?, ?, ?, ?, ?)");
+            st.bind(1, session_id);
+            st.bind(2, p.index);
+            st.bind(3, p.freq_hz);
+            st.bind(4, p.adaptive ? 1 : 0);
+            st.bind(5, now);
+            st.exec();
+        }
+        txn.commit();
+    });
+}
+
+std::vector<PlanPoint> SqliteArchive::plan(std::int64_t session_id) {
+    return impl_->guarded([&] { return impl_->read_plan(session_id); });
+}
+
+Point SqliteArchive::append_point(std::int64_t session_id, const Point& point) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        impl_->require_running(session_id);
+        Point p = impl_->insert_point(session_id, point);
+        impl_->beat(session_id);
+        txn.commit();
+        return p;
+    });
+}
+
+std::vector<Point> SqliteArchive::append_points(std::int64_t session_id,
+                                                const std::vector<Point>& points) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        impl_->require_running(session_id);
+        std::vector<Point> out;
+        out.reserve(points.size());
+        for (const auto& p : points) out.push_back(impl_->insert_point(session_id, p));
+        impl_->beat(session_id);
+        txn.commit();
+        return out;
+    });
+}
+
+std::vector<Point> SqliteArchive::current_points(std::int64_t session_id) {
+    return impl_->guarded([&] { return impl_->read_points(session_id, true); });
+}
+
+FitRecord SqliteArchive::add_fit(const FitRecord& fit) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        impl_->require_session(fit.session_id);
+        FitRecord f = fit;
+        f.uuid = make_uuid_v4();
+        f.created_utc = utc_iso(impl_->now());
+        auto& st = impl_->query(
+            "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
+            "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+        st.bind(1, f.uuid);
+        st.bind(2, f.session_id);
+        st.bind(3, f.kind);
+        st.bind(4, f.model);
+        st.bind(5, f.params_json);
+        st.bind(6, f.report_json);
+        bind_optional(st, 7, f.midband_gain_db);
+        bind_optional(st, 8, f.f_low_hz);
+        bind_optional(st, 9, f.f_high_hz);
+        st.bind(10, f.created_utc);
+        st.exec();
+        f.id = impl_->db->getLastInsertRowid();
+        txn.commit();
+        return f;
+    });
+}
+
+std::vector<FitRecord> SqliteArchive::fits(std::int64_t session_id) {
+    return impl_->guarded([&] {
+        std::vector<FitRecord> out;
+        auto& st = impl_->query(std::string("SELECT ") + fit_columns +
+                                " FROM fits WHERE session_id = ? ORDER BY id");
+        st.bind(1, session_id);
+        while (st.executeStep()) out.push_back(read_fit(st));
+        return out;
+    });
+}
+
+Lot SqliteArchive::add_lot(const Lot& lot) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        Lot l = lot;
+        l.uuid = make_uuid_v4();
+        l.created_utc = utc_iso(impl_->now());
+        auto& st = impl_->query(
+            "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, session_id, "
+            "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
+        st.bind(1, l.uuid);
+        st.bind(2, l.lot_code);
+        st.bind(3, l.plan_json);
+        st.bind(4, l.quantity);
+        st.bind(5, l.supplier);
+        st.bind(6, l.status);
+        bind_optional(st, 7, l.session_id);
+        st.bind(8, l.created_utc);
+        st.exec();
+        l.id = impl_->db->getLastInsertRowid();
+        txn.commit();
+        return l;
+    });
+}
+
+std::optional<Lot> SqliteArchive::lot(const std::string& lot_code) {
+    return impl_->guarded([&]() -> std::optional<Lot> {
+        auto& st = impl_->query(std::string("SELECT ") + lot_columns +
+                                " FROM lots WHERE lot_code = ?");
+        st.bind(1, lot_code);
+        if (!st.executeStep()) return std::nullopt;
+        return read_lot(st);
+    });
+}
+
+void SqliteArchive::set_lot_status(std::int64_t lot_id, const std::string& status) {
+    impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        auto& st = impl_->query("UPDATE lots SET status = ? WHERE id = ?");
+        st.bind(1, status);
+        st.bind(2, lot_id);
+        if (st.exec() != 1)
+            throw StoreError(fmt::format("archive {}: no lot {}", impl_->path, lot_id));
+        txn.commit();
+    });
+}
+
+Device SqliteArchive::add_device(const Device& device) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        Device d = device;
+        d.uuid = make_uuid_v4();
+        auto& st = impl_->query(
+            "INSERT INTO devices(uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, "
+            "vbe_sd_v, ic_a, ic_sd_a, vce_v, vce_sd_v, passed, skipped_reason, replacement_of) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+        st.bind(1, d.uuid);
+        st.bind(2, d.lot_id);
+        st.bind(3, d.index);
+        st.bind(4, d.readings_json);
+        bind_optional(st, 5, d.hfe);
+        bind_optional(st, 6, d.hfe_sd);
+        bind_optional(st, 7, d.vbe_v);
+        bind_optional(st, 8, d.vbe_sd_v);
+        bind_optional(st, 9, d.ic_a);
+        bind_optional(st, 10, d.ic_sd_a);
+        bind_optional(st, 11, d.vce_v);
+        bind_optional(st, 12, d.vce_sd_v);
+        if (d.passed)
+            st.bind(13, *d.passed ? 1 : 0);
+        else
+            st.bind(13);
+        st.bind(14, d.skipped_reason);
+        bind_optional(st, 15, d.replacement_of);
+        st.exec();
+        d.id = impl_->db->getLastInsertRowid();
+        txn.commit();
+        return d;
+    });
+}
+
+std::vector<Device> SqliteArchive::devices(std::int64_t lot_id) {
+    return impl_->guarded([&] {
+        std::vector<Device> out;
+        auto& st = impl_->query(std::string("SELECT ") + device_columns +
+                                " FROM devices WHERE lot_id = ? ORDER BY device_index, id");
+        st.bind(1, lot_id);
+        while (st.executeStep()) out.push_back(read_device(st));
+        return out;
+    });
+}
+
+std::vector<SessionSummary> SqliteArchive::history(const std::string& serial) {
+    return impl_->guarded([&] { return impl_->summaries(history_sql, serial); });
+}
+
+SessionDetail SqliteArchive::session_detail(std::int64_t session_id) {
+    return impl_->guarded([&] {
+        SessionDetail d;
+        d.session = impl_->require_session(session_id);
+        d.board = impl_->find_board(d.session.board_serial);
+        d.instruments = impl_->read_instruments(session_id);
+        d.probes = impl_->read_probes(session_id);
+        d.plan = impl_->read_plan(session_id);
+        d.points = impl_->read_points(session_id, false);
+        d.fits = fits(session_id);
+        return d;
+    });
+}
+
+std::unique_ptr<Archive> open_archive(const std::string& location, const ArchiveOptions& options) {
+    std::string path = location;
+    if (path.rfind("sqlite:", 0) == 0) {
+        path = path.substr(7);
+        if (path.rfind("//", 0) == 0) path = path.substr(2);
+    } else if (const auto colon = path.find("://"); colon != std::string::npos) {
+        throw StoreError(fmt::format("archive {}: the '{}' backend is not available in this build",
+                                     location, path.substr(0, colon)));
+    }
+    if (path.empty()) throw StoreError("archive: empty path");
+    return std::make_unique<SqliteArchive>(path, options);
+}
+
+}  // namespace ampbench::store
