@@ -59,7 +59,8 @@ SessionStatus session_status_from(const std::string& text);
 
 // What a procedure knows when it starts a session.
 struct NewSession {
-    std::string board_serial;  // the board is created when new
+    std::string board_serial;    // the board is created when new
+    std::string design_address;  // when set, recorded as the board's design (must be stored)
     SessionKind kind = SessionKind::sweep;
     std::string operator_name;
     std::string bench_file;
@@ -214,6 +215,8 @@ public:
 
     // Sessions.
     virtual Session begin_session(const NewSession& session) = 0;
+    // A finished session with all its readings in one transaction: all of it or nothing.
+    virtual Session import_session(const NewSession& session, const std::vector<Point>& points) = 0;
     virtual std::optional<Session> session(std::int64_t id) = 0;
     virtual void heartbeat(std::int64_t session_id) = 0;
     virtual void finish_session(std::int64_t session_id, SessionStatus status) = 0;

@@ -656,6 +656,9 @@ struct SqliteArchive::Impl {
         st.exec();
     }
 
+    // Inside a write transaction: the session row, its instruments and probes.
+    std::int64_t insert_session(const NewSession& in);
+
     std::vector<SessionSummary> summaries(const std::string& sql, const std::string& serial) {
         std::vector<SessionSummary> out;
         auto& st = query(sql);
@@ -769,55 +772,74 @@ std::vector<BoardSummary> SqliteArchive::boards() {
 Session SqliteArchive::begin_session(const NewSession& in) {
     return impl_->guarded([&] {
         auto txn = impl_->write_transaction();
-        const Board b = impl_->ensure_board_locked(in.board_serial, {}, {});
-        const double now = impl_->now();
-        auto& st = impl_->query(
-            "INSERT INTO sessions(uuid, board_id, kind, status, started_utc, operator, host, pid, "
-            "heartbeat_unix_s, bench_file, software_version, notes) "
-            "VALUES (?, ?, ?, 'running', ?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, make_uuid_v4());
-        st.bind(2, b.id);
-        st.bind(3, to_string(in.kind));
-        st.bind(4, utc_iso(now));
-        st.bind(5, in.operator_name);
-        st.bind(6, impl_->host);
-        st.bind(7, impl_->pid);
-        st.bind(8, now);
-        st.bind(9, in.bench_file);
-        st.bind(10, software_version());
-        st.bind(11, in.notes);
-        st.exec();
-        const std::int64_t id = impl_->db->getLastInsertRowid();
-        for (const auto& i : in.instruments) {
-            auto& ins = impl_->query(
-                "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
-                "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-            ins.bind(1, id);
-            ins.bind(2, i.role);
-            ins.bind(3, i.identity);
-            ins.bind(4, i.asset);
-            ins.bind(5, i.uri);
-            ins.bind(6, i.cal_due);
-            ins.bind(7, i.certificate);
-            ins.bind(8, i.settings_json);
-            ins.exec();
-        }
-        for (const auto& p : in.probes) {
-            auto& pr = impl_->query(
-                "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
-                "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
-            pr.bind(1, id);
-            pr.bind(2, p.name);
-            pr.bind(3, p.channel);
-            pr.bind(4, p.asset);
-            pr.bind(5, p.ratio);
-            pr.bind(6, p.cal_due);
-            pr.bind(7, p.certificate);
-            pr.exec();
-        }
+        const std::int64_t id = impl_->insert_session(in);
         txn.commit();
         return impl_->require_session(id);
     });
+}
+
+Session SqliteArchive::import_session(const NewSession& in, const std::vector<Point>& points) {
+    return impl_->guarded([&] {
+        auto txn = impl_->write_transaction();
+        const std::int64_t id = impl_->insert_session(in);
+        for (const auto& p : points) impl_->insert_point(id, p);
+        auto& st = impl_->query(
+            "UPDATE sessions SET status = 'complete', finished_utc = started_utc WHERE id = ?");
+        st.bind(1, id);
+        st.exec();
+        txn.commit();
+        return impl_->require_session(id);
+    });
+}
+
+std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
+    const Board b = ensure_board_locked(in.board_serial, in.design_address, {});
+    const double now_s = now();
+    auto& st = query(
+        "INSERT INTO sessions(uuid, board_id, kind, status, started_utc, operator, host, pid, "
+        "heartbeat_unix_s, bench_file, software_version, notes) "
+        "VALUES (?, ?, ?, 'running', ?, ?, ?, ?, ?, ?, ?, ?)");
+    st.bind(1, make_uuid_v4());
+    st.bind(2, b.id);
+    st.bind(3, to_string(in.kind));
+    st.bind(4, utc_iso(now_s));
+    st.bind(5, in.operator_name);
+    st.bind(6, host);
+    st.bind(7, pid);
+    st.bind(8, now_s);
+    st.bind(9, in.bench_file);
+    st.bind(10, software_version());
+    st.bind(11, in.notes);
+    st.exec();
+    const std::int64_t id = db->getLastInsertRowid();
+    for (const auto& i : in.instruments) {
+        auto& ins = query(
+            "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
+            "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
+        ins.bind(1, id);
+        ins.bind(2, i.role);
+        ins.bind(3, i.identity);
+        ins.bind(4, i.asset);
+        ins.bind(5, i.uri);
+        ins.bind(6, i.cal_due);
+        ins.bind(7, i.certificate);
+        ins.bind(8, i.settings_json);
+        ins.exec();
+    }
+    for (const auto& p : in.probes) {
+        auto& pr = query(
+            "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
+            "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
+        pr.bind(1, id);
+        pr.bind(2, p.name);
+        pr.bind(3, p.channel);
+        pr.bind(4, p.asset);
+        pr.bind(5, p.ratio);
+        pr.bind(6, p.cal_due);
+        pr.bind(7, p.certificate);
+        pr.exec();
+    }
+    return id;
 }
 
 std::optional<Session> SqliteArchive::session(std::int64_t id) {

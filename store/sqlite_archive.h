@@ -33,6 +33,7 @@ public:
     std::vector<BoardSummary> boards() override;
 
     Session begin_session(const NewSession& session) override;
+    Session import_session(const NewSession& session, const std::vector<Point>& points) override;
     std::optional<Session> session(std::int64_t id) override;
     void heartbeat(std::int64_t session_id) override;
     void finish_session(std::int64_t session_id, SessionStatus status) override;

@@ -457,3 +457,24 @@ TEST_CASE("a URL for a backend this build lacks is refused", "[store]") {
     TempDir dir;
     CHECK(open_archive("sqlite:" + dir.path("u.sqlite"))->schema_version() == current_schema_version());
 }
+
+TEST_CASE("an imported session is written whole or not at all", "[store]") {
+    TempDir dir;
+    auto archive = open_archive(dir.path("a.sqlite"));
+    const auto design = archive->put_design(R"({"name":"HVE-LD2 line driver"})", "ld2");
+    NewSession ns;
+    ns.board_serial = "LD2-2611-0003";
+    ns.kind = SessionKind::import;
+    ns.design_address = design.address;
+    std::vector<Point> points = {testing::reading(100, 20), testing::reading(1000, 21)};
+    const Session s = archive->import_session(ns, points);
+    CHECK(s.status == SessionStatus::complete);
+    CHECK(archive->current_points(s.id).size() == 2);
+    CHECK(archive->board("LD2-2611-0003")->design_address == design.address);
+
+    points.push_back(testing::reading(std::nan(""), 1.0));  // refused by the archive
+    ns.board_serial = "LD2-2611-0004";
+    CHECK_THROWS_AS(archive->import_session(ns, points), StoreError);
+    CHECK_FALSE(archive->board("LD2-2611-0004"));
+    CHECK(archive->history("LD2-2611-0003").size() == 1);
+}
