@@ -1,0 +1,141 @@
+// Evaluation, analytic derivatives and residuals of the rational transfer-function model.
+#include "fit/response/rational_model.h"
+
+#include <cmath>
+#include <numbers>
+#include <regex>
+
+#include <fmt/format.h>
+
+#include "core/errors.h"
+
+namespace ampbench::fit {
+
+namespace {
+constexpr double db_per_neper = 20.0 / std::numbers::ln10;
+constexpr double deg_per_rad = 180.0 / std::numbers::pi;
+// Without given sds, a residual of 1 dB weighs as much as one of 6.6° (1 neper ↔ 1 radian).
+constexpr double default_sd_db = 1.0;
+constexpr double default_sd_deg = deg_per_rad / db_per_neper;
+}  // namespace
+
+double wrap_deg(double deg) {
+    double w = std::remainder(deg, 360.0);
+    if (w <= -180.0) w += 360.0;
+    return w;
+}
+
+std::string RationalOrder::name() const {
+    std::string s = fmt::format("rational:{}", low_poles);
+    if (low_zeros > 0) s += fmt::format("/{}", low_zeros);
+    s += fmt::format(",{}", high_poles);
+    if (complex_pairs > 0) s += fmt::format("+{}c", complex_pairs);
+    return s;
+}
+
+RationalOrder RationalOrder::parse(const std::string& text) {
+    static const std::regex form(R"(rational:(\d)(?:/(\d))?,(\d)(?:\+(\d)c)?)");
+    std::smatch m;
+    if (!std::regex_match(text, m, form))
+        throw FitInputError(fmt::format("model '{}': expected auto or rational:L,H (e.g. rational:2,2, "
+                                        "rational:3/1,2, rational:2,1+1c)", text));
+    RationalOrder o;
+    o.low_poles = std::stoi(m[1]);
+    o.low_zeros = m[2].matched ? std::stoi(m[2]) : 0;
+    o.high_poles = std::stoi(m[3]);
+    o.complex_pairs = m[4].matched ? std::stoi(m[4]) : 0;
+    if (o.low_zeros > o.low_poles)
+        throw FitInputError(fmt::format("model '{}': {} finite low zeros but only {} low poles", text, o.low_zeros, o.low_poles));
+    return o;
+}
+
+std::vector<std::string> rational_parameter_names(const RationalOrder& o) {
+    std::vector<std::string> names = {"gain_db"};
+    for (int i = 0; i < o.low_poles; ++i) names.push_back(fmt::format("low_pole_{}_hz", i + 1));
+    for (int i = 0; i < o.low_zeros; ++i) names.push_back(fmt::format("low_zero_{}_hz", i + 1));
+    for (int i = 0; i < o.high_poles; ++i) names.push_back(fmt::format("high_pole_{}_hz", i + 1));
+    for (int i = 0; i < o.complex_pairs; ++i) {
+        names.push_back(fmt::format("pair_{}_hz", i + 1));
+        names.push_back(fmt::format("pair_{}_q", i + 1));
+    }
+    return names;
+}
+
+std::complex<double> rational_log_response(const RationalOrder& o, double sign, const double* p, double f,
+                                           std::complex<double>* d) {
+    using C = std::complex<double>;
+    const C jf(0.0, f);
+    C ln_h = p[0] / db_per_neper + (sign < 0 ? C(0.0, std::numbers::pi) : C(0.0));
+    if (d) d[0] = 1.0 / db_per_neper;
+    std::size_t k = 1;
+    const std::size_t zeros_at = 1 + static_cast<std::size_t>(o.low_poles);
+    const int origin_zeros = o.low_poles - o.low_zeros;
+    for (int i = 0; i < o.low_poles; ++i, ++k) {
+        const double pole = p[k];
+        const C den = jf + pole;
+        if (i < origin_zeros) {
+            ln_h += std::log(jf / den);
+        } else {
+            const std::size_t kz = zeros_at + static_cast<std::size_t>(i - origin_zeros);
+            const C num = jf + p[kz];
+            ln_h += std::log(num / den);
+            if (d) d[kz] = 1.0 / num;
+        }
+        if (d) d[k] = -1.0 / den;
+    }
+    k += static_cast<std::size_t>(o.low_zeros);
+    for (int i = 0; i < o.high_poles; ++i, ++k) {
+        const C den = 1.0 + jf / p[k];
+        ln_h -= std::log(den);
+        if (d) d[k] = (jf / (p[k] * p[k])) / den;
+    }
+    for (int i = 0; i < o.complex_pairs; ++i, k += 2) {
+        const double f0 = p[k], q = p[k + 1], u = f / f0;
+        const C den(1.0 - u * u, u / q);
+        ln_h -= std::log(den);
+        if (d) {
+            // dD/d ln f0 = 2u² − j·u/Q and dD/d ln Q = −j·u/Q, divided by f0 and Q for d/dp.
+            d[k] = -C(2 * u * u, -u / q) / den / f0;
+            d[k + 1] = C(0.0, u / q) / den / q;
+        }
+    }
+    return ln_h;
+}
+
+RationalResiduals::RationalResiduals(const GainData& data, RationalOrder order, double sign)
+    : data_(data), order_(order), sign_(sign) {
+    for (const GainPoint& pt : data.points) {
+        sd_db_.push_back(data.has_sd ? pt.gain_db_sd : default_sd_db);
+        sd_deg_.push_back(data.has_sd ? pt.phase_deg_sd : default_sd_deg);
+    }
+}
+
+std::size_t RationalResiduals::residual_count() const {
+    return data_.points.size() * (data_.has_phase ? 2 : 1);
+}
+
+void RationalResiduals::residuals(std::span<const double> p, std::span<double> r) const {
+    const std::size_t n = data_.points.size();
+    for (std::size_t i = 0; i < n; ++i) {
+        const GainPoint& pt = data_.points[i];
+        const std::complex<double> ln_h = rational_log_response(order_, sign_, p.data(), pt.freq_hz);
+        r[i] = (ln_h.real() * db_per_neper - pt.gain_db) / sd_db_[i];
+        if (data_.has_phase) r[n + i] = wrap_deg(ln_h.imag() * deg_per_rad - pt.phase_deg) / sd_deg_[i];
+    }
+}
+
+bool RationalResiduals::jacobian(std::span<const double> p, std::span<double> jac) const {
+    const std::size_t n = data_.points.size(), np = p.size();
+    std::vector<std::complex<double>> d(np);
+    for (std::size_t i = 0; i < n; ++i) {
+        std::fill(d.begin(), d.end(), 0.0);
+        rational_log_response(order_, sign_, p.data(), data_.points[i].freq_hz, d.data());
+        for (std::size_t j = 0; j < np; ++j) {
+            jac[i * np + j] = d[j].real() * db_per_neper / sd_db_[i];
+            if (data_.has_phase) jac[(n + i) * np + j] = d[j].imag() * deg_per_rad / sd_deg_[i];
+        }
+    }
+    return true;
+}
+
+}  // namespace ampbench::fit
