@@ -33,9 +33,11 @@ struct TransientState {
 
 struct TransientOptions {
     int max_newton = 60;
-    double reltol = 1e-9;
-    double vntol_v = 1e-10;
-    double abstol_a = 1e-15;
+    // Newton stops when every unknown moved less than reltol·|x| + vntol (nodes) or + abstol
+    // (branch currents); tighter than this only chases rounding.
+    double reltol = 1e-8;
+    double vntol_v = 1e-9;
+    double abstol_a = 1e-12;
 };
 
 // Called after each step with the time and the new state's unknowns.
