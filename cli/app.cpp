@@ -32,6 +32,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     add_check_command(app, ctx);
     add_off_command(app, ctx);
     add_ports_command(app, ctx);
+    add_fit_command(app, ctx);
 
 
     try {

@@ -9,5 +9,6 @@ void add_predict_command(CLI::App& app, Context& ctx);
 void add_check_command(CLI::App& app, Context& ctx);
 void add_off_command(CLI::App& app, Context& ctx);
 void add_ports_command(CLI::App& app, Context& ctx);
+void add_fit_command(CLI::App& app, Context& ctx);
 
 }  // namespace ampbench::cli

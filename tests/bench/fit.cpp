@@ -1,0 +1,100 @@
+// Benchmark: a 200-point rational fit (rational:2/1,2) by ampbench's engine against
+// scipy.optimize.least_squares on the same data from the same start, timed in the same run.
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+
+#include <unistd.h>
+
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include "core/random.h"
+#include "fit/response/response_fit.h"
+
+using namespace ampbench;
+using namespace ampbench::fit;
+
+int main() {
+    // A shelf-and-coupling low side and two high poles, 200 log-spaced points, seeded noise.
+    const RationalOrder order = RationalOrder::parse("rational:2/1,2");
+    const std::vector<double> truth = {40.0, 5.0, 50.0, 8.0, 1.0e5, 1.6e6};
+    Random rng(1);
+    GainData data;
+    data.has_sd = true;
+    for (int i = 0; i < 200; ++i) {
+        const double f = 0.1 * std::pow(2e8, i / 199.0);
+        const std::complex<double> ln_h = rational_log_response(order, -1.0, truth.data(), f);
+        GainPoint p{f, ln_h.real() * 20 / std::log(10.0) + rng.normal(0, 0.05),
+                    wrap_deg(ln_h.imag() * 180 / M_PI + rng.normal(0, 0.3)), 0.05, 0.3};
+        data.points.push_back(p);
+    }
+    data = prepare_gain_data(data);
+    const std::vector<double> start = rational_start(data, order, true);
+    const double sign = choose_sign(data, order, start);
+
+    const int repeats = 50;
+    ResponseFit ours;
+    const auto t0 = std::chrono::steady_clock::now();
+    for (int r = 0; r < repeats; ++r) ours = fit_response_from(data, order, sign, start);
+    const double ours_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count() / repeats;
+
+    // The LM iterations alone, without the derived quantities and their delta-method gradients.
+    const RationalResiduals model(data, order, sign);
+    std::vector<Parameter> params;
+    const std::vector<std::string> names = rational_parameter_names(order);
+    for (std::size_t j = 0; j < names.size(); ++j) params.push_back({names[j], start[j]});
+    for (std::size_t j = 1; j < params.size(); ++j) params[j].log_scale = true;
+    LsqOptions opt;
+    opt.scale_covariance = false;
+    FitReport lm_only;
+    const auto t1 = std::chrono::steady_clock::now();
+    for (int r = 0; r < repeats; ++r) lm_only = least_squares(model, params, opt);
+    const double lm_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t1).count() / repeats;
+
+    nlohmann::json problem;
+    for (const GainPoint& p : data.points) {
+        problem["freq_hz"].push_back(p.freq_hz);
+        problem["gain_db"].push_back(p.gain_db);
+        problem["phase_deg"].push_back(p.phase_deg);
+        problem["gain_db_sd"].push_back(p.gain_db_sd);
+        problem["phase_deg_sd"].push_back(p.phase_deg_sd);
+    }
+    problem["order"] = {{"low_poles", order.low_poles}, {"low_zeros", order.low_zeros},
+                        {"high_poles", order.high_poles}, {"complex_pairs", order.complex_pairs}};
+    problem["sign"] = sign;
+    problem["start"] = start;
+    problem["repeats"] = 10;
+    const auto dir = std::filesystem::temp_directory_path() / fmt::format("ampbench-bench-fit-{}", getpid());
+    std::filesystem::create_directories(dir);
+    std::ofstream(dir / "problem.json") << problem.dump();
+    const std::string cmd = fmt::format("/usr/bin/python3 '{}/fit/rational_lsq.py' '{}' > '{}'", AMPBENCH_TEST_DATA_DIR,
+                                        (dir / "problem.json").string(), (dir / "result.json").string());
+    if (std::system(cmd.c_str()) != 0) {
+        std::cerr << "bench_fit: the scipy script failed\n";
+        return 1;
+    }
+    std::ifstream in(dir / "result.json");
+    const nlohmann::json scipy = nlohmann::json::parse(in);
+    std::filesystem::remove_all(dir);
+    const double scipy_s = scipy.at("fit_seconds").get<double>();
+    const std::vector<double> theirs = scipy.at("params").get<std::vector<double>>();
+    double worst_rel = 0;
+    for (std::size_t j = 0; j < theirs.size(); ++j)
+        worst_rel = std::max(worst_rel, std::abs(lm_only.params[j].value - theirs[j]) / std::abs(theirs[j]));
+
+    std::cout << fmt::format("200-point rational:2/1,2 fit\n");
+    std::cout << fmt::format("  ampbench LM only          {:10.3f} ms  ({} evaluations)\n", lm_s * 1e3, lm_only.evaluations);
+    std::cout << fmt::format("  ampbench full fit report  {:10.3f} ms  (with derived quantities and intervals)\n", ours_s * 1e3);
+    std::cout << fmt::format("  scipy least_squares (lm)  {:10.3f} ms  ({} evaluations)\n", scipy_s * 1e3, scipy.at("nfev").get<int>());
+    std::cout << fmt::format("  ratio scipy / ampbench LM   {:8.1f}x\n", scipy_s / lm_s);
+    std::cout << fmt::format("  ratio scipy / full report   {:8.1f}x\n", scipy_s / ours_s);
+    std::cout << fmt::format("  largest relative parameter difference {:.2e}\n", worst_rel);
+    std::cout << "  circuit-model fit: not implemented yet, not timed\n";
+    return 0;
+}
