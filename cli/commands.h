@@ -9,6 +9,9 @@ void add_predict_command(CLI::App& app, Context& ctx);
 void add_check_command(CLI::App& app, Context& ctx);
 void add_off_command(CLI::App& app, Context& ctx);
 void add_ports_command(CLI::App& app, Context& ctx);
+void add_sweep_command(CLI::App& app, Context& ctx);
+void add_report_command(CLI::App& app, Context& ctx);
+void add_demo_command(CLI::App& app, Context& ctx);
 void add_fit_command(CLI::App& app, Context& ctx);
 
 }  // namespace ampbench::cli

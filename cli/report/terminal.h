@@ -1,0 +1,21 @@
+// Terminal and JSON renderings of a sweep's results: the gap table, the diagnosis, the fit.
+#pragma once
+#include <string>
+
+#include <nlohmann/json_fwd.hpp>
+
+#include "cli/procedures/sweep.h"
+
+namespace ampbench::report {
+
+// quantity | predicted | tolerance band | measured ± U | gap | verdict
+std::string gap_table(const std::vector<extract::GapRow>& rows);
+std::string diagnosis_text(const std::vector<extract::FaultCandidate>& candidates);
+// The `fit` object as `ampbench fit --json` gives it.
+nlohmann::ordered_json fit_json(const fit::ResponseFit& f);
+nlohmann::ordered_json gap_json(const std::vector<extract::GapRow>& rows);
+nlohmann::ordered_json diagnosis_json(const std::vector<extract::FaultCandidate>& candidates);
+// A number with its unit in engineering form ("42.10 Hz", "33.06 dB").
+std::string quantity_text(double v, const std::string& unit);
+
+}  // namespace ampbench::report
