@@ -139,12 +139,12 @@ void check_topology(const Design& d) {
     sets.join(d.supply_node, "0");
     sets.join(d.stimulus_node, "0");
     sets.id("0");
-    for (const auto& [node, index] : first_user) {
-        if (sets.connected(node, "0")) continue;
-        const Part& p = d.parts[index];
-        throw InputError(file, part_field(index, p.ref, "nodes"),
-                         fmt::format("node '{}' has no DC path to ground", node));
-    }
+    // Report the first floating node in file order, on the part that names it.
+    for (size_t i = 0; i < d.parts.size(); ++i)
+        for (const auto& node : d.parts[i].nodes)
+            if (!sets.connected(node, "0"))
+                throw InputError(file, part_field(i, d.parts[i].ref, "nodes"),
+                                 fmt::format("node '{}' has no DC path to ground", node));
 }
 
 }  // namespace
