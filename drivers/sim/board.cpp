@@ -232,9 +232,11 @@ struct SimulatedBoard::Impl {
                 integrate_span(left);
                 break;
             }
-            if (t - change_t < 3 * period) {
+            const double warmup = change_t + 3 * period - t;
+            if (warmup > 1e-9 * period) {
                 // Right after a change, integrate: the transition matrix is a linearisation.
-                integrate_span(std::min(left, change_t + 3 * period - t));
+                integrate_span(std::min(left, warmup));
+                if (left >= warmup) change_t = -INFINITY;
                 continue;
             }
             const double to_zero = phase > 0 ? (kTwoPi - phase) / (kTwoPi * freq) : 0.0;

@@ -7,6 +7,8 @@
 
 #include <fmt/format.h>
 
+#include "core/errors.h"
+
 namespace ampbench::sim {
 namespace {
 
@@ -198,7 +200,10 @@ Outcome ScpiResponder::execute_unit(ScpiUnit u, double now_s) {
         if (errors_.empty()) {
             out.reply = "0,\"No error\"";
         } else {
-            out.reply = fmt::format("{},\"{}\"", errors_.front().code, errors_.front().message);
+            std::string message = errors_.front().message;
+            for (char& c : message)
+                if (c == '"') c = '\'';
+            out.reply = fmt::format("{},\"{}\"", errors_.front().code, message);
             errors_.pop_front();
         }
         return out;
@@ -212,6 +217,10 @@ Outcome ScpiResponder::execute_unit(ScpiUnit u, double now_s) {
             return r;
         } catch (const ScpiFault& f) {
             push_error(f.code, f.message);
+            return out;
+        } catch (const Error& err) {
+            // The simulation itself failed (a step that did not converge): SCPI-1999 −300.
+            push_error(-300, std::string("Device-specific error; ") + err.what());
             return out;
         }
     }
