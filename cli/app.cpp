@@ -29,6 +29,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     app.add_option("--db", ctx.global.db, "Archive file (default $AMPBENCH_DB or ./ampbench.sqlite)");
     app.add_option("--trace", ctx.global.trace, "Log every instrument exchange to FILE");
     add_predict_command(app, ctx);
+    add_simulate_command(app, ctx);
     add_check_command(app, ctx);
     add_off_command(app, ctx);
     add_ports_command(app, ctx);

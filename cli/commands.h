@@ -6,6 +6,7 @@
 namespace ampbench::cli {
 
 void add_predict_command(CLI::App& app, Context& ctx);
+void add_simulate_command(CLI::App& app, Context& ctx);
 void add_check_command(CLI::App& app, Context& ctx);
 void add_off_command(CLI::App& app, Context& ctx);
 void add_ports_command(CLI::App& app, Context& ctx);
