@@ -98,6 +98,8 @@ TEST_CASE("emitter follower gain is just under 1", "[circuit][predict]") {
           Approx(par(re_load, re_small + (rs + rb) / (q.beta0 + 1))).epsilon(0.02));
 }
 
+// Gain is V(out)/V(in) with V(in) measured at the board, so in both time-constant estimates the
+// in node acts as an ideal source: the generator's resistance does not enter.
 TEST_CASE("short-circuit time constants estimate f_low of HVE-PA1", "[circuit][predict]") {
     const Design d = load_design(sample_design("pa1"));
     const Prediction p = predict(build_netlist(d));
@@ -108,15 +110,15 @@ TEST_CASE("short-circuit time constants estimate f_low of HVE-PA1", "[circuit][p
     const double ro = (d.models.begin()->second.early_voltage_v + q.vce_v) / q.ic_a;
     // Source: Gray & Meyer, Analysis and Design of Analog Integrated Circuits, short-circuit
     // time-constant method: ω_low ≈ Σ 1/(R_i·C_i), R_i seen by C_i with the others shorted.
-    const double r_c1 = 50 + par(rbias, rin_base);
-    const double r_c2 = par(value(d, "R4"), (rin_base + par(50.0, rbias)) / (q.beta0 + 1));
+    const double r_c1 = par(rbias, rin_base);
+    const double r_c2 = par(value(d, "R4"), rin_base / (q.beta0 + 1));
     const double r_c3 = par(value(d, "R3"), ro) + value(d, "RL");
     const double w = 1 / (r_c1 * value(d, "C1")) + 1 / (r_c2 * value(d, "C2")) +
                      1 / (r_c3 * value(d, "C3"));
     const double f_est = w / (2 * std::numbers::pi);
     REQUIRE(p.response.f_low_hz);
-    // The estimate is known to err high when the poles are close; within 15 % here, where the
-    // emitter bypass dominates.
+    // The estimate errs high when the poles are close; within 15 % here, where the emitter
+    // bypass dominates.
     CHECK(f_est >= *p.response.f_low_hz * 0.99);
     CHECK(f_est == Approx(*p.response.f_low_hz).epsilon(0.15));
 }
@@ -126,18 +128,17 @@ TEST_CASE("open-circuit time constants estimate f_high of HVE-PA1", "[circuit][p
     const Prediction p = predict(build_netlist(d));
     const BjtOperatingPoint& q = p.op.transistors.at(0);
     const double rb = d.models.begin()->second.base_resistance_ohm;
-    const double rs = par(50.0, par(value(d, "R1"), value(d, "R2")));
     const double ro = (d.models.begin()->second.early_voltage_v + q.vce_v) / q.ic_a;
     const double rl = par(par(value(d, "R3"), value(d, "RL")), ro);
     const double cpi = q.eval.dqbe_dvbe, cmu = q.eval.dqbc_dvbc;
     // Source: Gray & Meyer, open-circuit time-constant method: ω_high ≈ 1/Σ R_i°·C_i, with
-    // R_π° = r_π ‖ (R_S + r_b) and R_μ° = R_x + R_L' + g_m·R_x·R_L' (Miller).
-    const double rx = par(q.rpi_ohm, rs + rb);
+    // R_π° = r_π ‖ (R_S + r_b), R_μ° = R_x + R_L' + g_m·R_x·R_L' (Miller) and R_S = 0 here.
+    const double rx = par(q.rpi_ohm, rb);
     const double tau = rx * cpi + (rx + rl + q.gm_s * rx * rl) * cmu;
     const double f_est = 1 / (2 * std::numbers::pi * tau);
     REQUIRE(p.response.f_high_hz);
-    // The estimate is conservative (Σ τ is the first denominator coefficient) and, with one
-    // dominant pole, within about 10 %.
+    // Σ τ is the first denominator coefficient, so the estimate errs low; with one dominant
+    // pole it is within about 10 %.
     CHECK(f_est <= *p.response.f_high_hz * 1.01);
     CHECK(f_est == Approx(*p.response.f_high_hz).epsilon(0.10));
 }
@@ -170,10 +171,10 @@ TEST_CASE("largest undistorted swing: cutoff at I_C·R_ac, saturation at V_CE(sa
     const Design d = load_design(sample_design("pa1"));
     const Prediction p = predict(build_netlist(d));
     const BjtOperatingPoint& q = p.op.transistors.at(0);
-    const double ro = (d.models.begin()->second.early_voltage_v + q.vce_v) / q.ic_a;
-    const double rac = par(par(value(d, "R3"), value(d, "RL")), ro);
+    const double rac = par(value(d, "R3"), value(d, "RL"));
     // common practice: load-line limits of a fully bypassed CE stage, peak swing
-    // min(I_C·R_ac, V_CE − V_CE(sat)) with V_CE(sat) ≈ 0.2 V.
+    // min(I_C·R_ac, V_CE − V_CE(sat)) with V_CE(sat) ≈ 0.2 V and R_ac = R_C ‖ R_L, the load the
+    // collector current flows into.
     const double peak = std::min(q.ic_a * rac, q.vce_v - 0.2);
     CHECK(p.response.max_output_vpp == Approx(2 * peak).epsilon(0.02));
 }
@@ -190,8 +191,13 @@ TEST_CASE("the fast AC path equals a dense complex LU", "[circuit][ac]") {
             const auto ref = ac.solution_direct(f);
             double scale = 0;
             for (auto v : ref) scale = std::max(scale, std::abs(v));
+            // Forming G⁻¹C costs digits to its conditioning; 1e-6 is still 5000 times below the
+            // tightest acceptance tolerance (0.5 %).
             for (size_t i = 0; i < fast.size(); ++i)
-                CHECK(std::abs(fast[i] - ref[i]) <= 1e-8 * scale);
+                CHECK(std::abs(fast[i] - ref[i]) <= 1e-6 * scale);
+            const int out = nl.out - 1, in = nl.in - 1;
+            CHECK(std::abs(fast[out] / fast[in] - ref[out] / ref[in]) <=
+                  1e-5 * std::abs(ref[out] / ref[in]));
         }
     }
 }
