@@ -33,6 +33,10 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     add_check_command(app, ctx);
     add_off_command(app, ctx);
     add_ports_command(app, ctx);
+    add_history_command(app, ctx);
+    add_export_command(app, ctx);
+    add_import_command(app, ctx);
+    add_boards_command(app, ctx);
     add_sweep_command(app, ctx);
     add_report_command(app, ctx);
     add_demo_command(app, ctx);

@@ -1,0 +1,51 @@
+// In-process command runner and temporary directories for the CLI tests.
+#include "cli_support.h"
+
+#include <unistd.h>
+
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <stdexcept>
+
+#include "cli/app.h"
+
+namespace ampbench::cli::testing {
+
+CliResult run_cli(const std::vector<std::string>& args) {
+    std::ostringstream out, err;
+    CliResult result;
+    result.code = ampbench::cli::run(args, out, err);
+    result.out = out.str();
+    result.err = err.str();
+    return result;
+}
+
+CliTempDir::CliTempDir() {
+    const char* base = std::getenv("TMPDIR");
+    std::string pattern = std::string(base && *base ? base : "/tmp") + "/ampbench-cli-XXXXXX";
+    if (!::mkdtemp(pattern.data())) throw std::runtime_error("mkdtemp failed");
+    dir_ = pattern;
+}
+
+CliTempDir::~CliTempDir() {
+    std::error_code ec;
+    std::filesystem::remove_all(dir_, ec);
+}
+
+void write_text(const std::string& path, const std::string& text) {
+    std::ofstream out(path, std::ios::binary | std::ios::trunc);
+    if (!out) throw std::runtime_error("cannot write " + path);
+    out << text;
+}
+
+std::string read_text(const std::string& path) {
+    std::ifstream in(path, std::ios::binary);
+    if (!in) throw std::runtime_error("cannot read " + path);
+    std::ostringstream text;
+    text << in.rdbuf();
+    return text.str();
+}
+
+}  // namespace ampbench::cli::testing
