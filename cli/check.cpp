@@ -102,9 +102,11 @@ int run_check(const CheckArgs& args, Context& ctx) {
             if (r.idn)
                 ctx.out << fmt::format("  identity     {} {}, serial {}, firmware {}\n", r.idn->manufacturer,
                                        r.idn->model, r.idn->serial, r.idn->firmware);
-            if (r.ok) ctx.out << fmt::format("  round trip   {:.1f} ms\n", r.round_trip_ms);
-            ctx.out << fmt::format("  errors       {}\n", r.errors.empty() ? std::string("none")
-                                                                           : fmt::format("{}", fmt::join(r.errors, "; ")));
+            if (r.ok) {
+                ctx.out << fmt::format("  round trip   {:.1f} ms\n", r.round_trip_ms);
+                const std::string errors = r.errors.empty() ? "none" : fmt::format("{}", fmt::join(r.errors, "; "));
+                ctx.out << fmt::format("  errors       {}\n", errors);
+            }
             ctx.out << fmt::format("  calibration  {}\n", r.calibration.describe());
             ctx.out << fmt::format("  state        {}\n", r.ok ? "answers" : "PROBLEM: " + r.problem);
         }

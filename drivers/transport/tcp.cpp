@@ -39,6 +39,7 @@ struct TcpTransport::Impl {
     }
 
     void connect(Deadline deadline) {
+        const double budget_ms = ms_left(deadline);
         boost::system::error_code ec;
         tcp::resolver resolver(io);
         tcp::resolver::results_type endpoints;
@@ -55,7 +56,7 @@ struct TcpTransport::Impl {
             resolver.cancel();
             io.restart();
             io.run();
-            throw TimeoutError(fmt::format("{}: timeout resolving the host name", name()));
+            throw TimeoutError(fmt::format("{}: host name not resolved within {:.0f} ms", name(), budget_ms));
         }
         if (ec) throw ConnectionError(fmt::format("{}: cannot resolve host: {}", name(), ec.message()));
         asio::async_connect(socket, endpoints,
@@ -66,7 +67,7 @@ struct TcpTransport::Impl {
             socket.close(ec);
             io.restart();
             io.run();
-            throw TimeoutError(fmt::format("{}: connect timeout", name()));
+            throw TimeoutError(fmt::format("{}: no connection within {:.0f} ms", name(), budget_ms));
         }
         if (ec) {
             socket.close();
