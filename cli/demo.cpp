@@ -23,6 +23,11 @@ struct DemoArgs {
     std::string out = "ampbench-demo";
     std::string samples;
     bool progress = true;
+    int per_decade = 6;
+    int tolerance_runs = 2000;
+    // Above a few hundred kHz the virtual bench's periodic-steady-state solver stops converging
+    // (its tolerance is tighter than the period map's conditioning), so the demo stays below.
+    double to_hz = 150e3;
 };
 
 fs::path find_samples(const std::string& given) {
@@ -87,15 +92,16 @@ int run_demo(Context& ctx, const DemoArgs& a) {
         o.operator_name = "demo";
         o.assume_yes = true;
         o.progress = a.progress;
-        o.plan.per_decade = 6;
+        o.plan.per_decade = a.per_decade;
+        o.tolerance_runs = a.tolerance_runs;
+        o.plan.to_hz = a.to_hz;
         const procedures::SweepOutcome r = procedures::run_sweep(o, *archive, ctx.out, ctx.err, std::cin);
         ctx.out << fmt::format("session {} · {} points · {:.1f} s of virtual time\n{}\n\n", r.session_id, r.points, r.virtual_s.value_or(0.0),
                                r.fit.brief());
         ctx.out << report::gap_table(r.gap);
         if (!r.diagnosis.empty()) ctx.out << "\n" << report::diagnosis_text(r.diagnosis);
-        const procedures::SessionAnalysis analysis = procedures::analyse_session(*archive, r.session_id);
         const fs::path html = out / fmt::format("{}.html", b.serial);
-        write_file(html, report::html_report(archive->session_detail(r.session_id), analysis));
+        write_file(html, report::html_report(archive->session_detail(r.session_id), r.analysis));
         written.push_back(html.string());
     }
     ctx.out << "\nArchive: " << (out / "ampbench.sqlite").string() << "\nReports:\n";
@@ -110,6 +116,10 @@ void add_demo_command(CLI::App& app, Context& ctx) {
     CLI::App* c = app.add_subcommand("demo", "Measure two sample boards on the virtual bench and write their reports");
     c->add_option("--out", args->out, "Directory for the archive and reports (default ./ampbench-demo)");
     c->add_option("--samples", args->samples, "Directory holding the sample designs (default: found beside the program)");
+    c->add_option("--per-decade", args->per_decade, "Points per decade of the base plan (default 6)")->check(CLI::Range(2, 40));
+    c->add_option("--to", args->to_hz, "Highest frequency of the plan, Hz (default 150 kHz)")->check(CLI::PositiveNumber);
+    c->add_option("--tolerance-runs", args->tolerance_runs, "Monte Carlo draws for the tolerance band (default 2000)")
+        ->check(CLI::Range(100, 100000));
     c->add_flag("--no-progress", [args](std::int64_t) { args->progress = false; }, "No progress bar");
     c->callback([&ctx, args] { ctx.action = [&ctx, args] { return run_demo(ctx, *args); }; });
 }

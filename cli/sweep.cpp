@@ -78,6 +78,8 @@ void add_sweep_command(CLI::App& app, Context& ctx) {
     c->add_option("--captures", args->options.captures, "Captures per point (default 1)");
     c->add_option("--method", args->options.method, "capture or amplitude");
     c->add_option("--resume", args->options.resume_session, "Continue an interrupted session");
+    c->add_option("--tolerance-runs", args->options.tolerance_runs, "Monte Carlo draws for the tolerance band (default 2000)")
+        ->check(CLI::Range(100, 100000));
     c->add_option("--operator", args->options.operator_name, "Who is measuring");
     c->add_flag("--yes", args->options.assume_yes, "Do not ask before powering the board");
     c->add_flag("--json", args->json, "Print the result as JSON");

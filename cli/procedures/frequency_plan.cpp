@@ -59,13 +59,18 @@ std::vector<double> adaptive_points(std::vector<MeasuredGain> m, const Frequency
         if ((ga > 0) == (gb > 0)) return false;
         if (m[b].freq_hz / m[a].freq_hz - 1 <= o.corner_tolerance) return true;
         const double la = std::log(m[a].freq_hz), lb = std::log(m[b].freq_hz);
-        double x = la + (lb - la) * ga / (ga - gb);
-        // Keep the new point strictly inside the bracket so each round shrinks it.
-        const double margin = (lb - la) * 0.1;
-        x = std::clamp(x, la + margin, lb - margin);
-        double f = clear_of_mains(std::exp(x), o.mains_hz, o.mains_harmonics, o.mains_clearance);
-        if (f <= m[a].freq_hz || f >= m[b].freq_hz) f = std::sqrt(m[a].freq_hz * m[b].freq_hz);
-        out.push_back(f);
+        const double x = la + (lb - la) * ga / (ga - gb);
+        // Regula falsi alone keeps one end of the bracket fixed and shrinks it slowly; a pair of
+        // points straddling the estimate, closer together than the tolerance, closes it at once
+        // when the estimate is good and narrows the bracket for a better one when it is not.
+        const double half = 0.4 * std::log1p(o.corner_tolerance);
+        const double margin = (lb - la) * 0.05;
+        for (double xi : {x - half, x + half}) {
+            const double xc = std::clamp(xi, la + margin, lb - margin);
+            double f = clear_of_mains(std::exp(xc), o.mains_hz, o.mains_harmonics, o.mains_clearance);
+            if (f <= m[a].freq_hz || f >= m[b].freq_hz) f = std::sqrt(m[a].freq_hz * m[b].freq_hz);
+            if (out.empty() || std::abs(out.back() / f - 1) > 1e-9) out.push_back(f);
+        }
         return true;
     };
     for (size_t i = peak; i > 0; --i)

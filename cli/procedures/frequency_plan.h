@@ -33,8 +33,8 @@ struct MeasuredGain {
 
 // Frequencies to add so that each −3 dB crossing of `measured` (relative to its maximum) is
 // bracketed by two points less than corner_tolerance apart in frequency; empty when every corner
-// is located (or none is crossed). New points are log-interpolated crossing estimates kept off
-// mains harmonics and away from points already measured.
+// is located (or none is crossed). New points come in pairs straddling the log-interpolated
+// crossing estimate (closer together than the tolerance), inside the bracket, kept off mains harmonics.
 std::vector<double> adaptive_points(std::vector<MeasuredGain> measured, const FrequencyPlanOptions& options);
 
 }  // namespace ampbench::procedures

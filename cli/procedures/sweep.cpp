@@ -480,11 +480,12 @@ SweepOutcome Sweeper::run() {
     if (vclock_) result.virtual_s = vclock_->now_s();
     result.level_vpp = level_vpp_;
     result.stimulus_vpp = stim_vpp_;
-    result.fit = std::move(a.fit);
-    result.prediction = std::move(a.prediction);
-    result.band = std::move(a.band);
-    result.gap = std::move(a.gap);
-    result.diagnosis = std::move(a.diagnosis);
+    result.fit = a.fit;
+    result.prediction = a.prediction;
+    result.band = a.band;
+    result.gap = a.gap;
+    result.diagnosis = a.diagnosis;
+    result.analysis = std::move(a);
     return result;
 }
 

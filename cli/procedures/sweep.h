@@ -37,6 +37,20 @@ struct DcReading {
     double volts = 0, u_v = 0, predicted_v = 0;
 };
 
+// The gap table and diagnosis of a stored session (used by sweep and report).
+struct SessionAnalysis {
+    std::string predicted_design_json;  // the design as stored with the session
+    circuit::BenchLoading loading;       // what the session's bench adds to it
+    double current_limit_a = 0;
+    fit::ResponseFit fit;
+    circuit::Prediction prediction;
+    circuit::ToleranceBand band;
+    std::vector<DcReading> dc;
+    double quiescent_a = 0;
+    std::vector<extract::GapRow> gap;
+    std::vector<extract::FaultCandidate> diagnosis;
+};
+
 struct SweepOutcome {
     std::int64_t session_id = 0;
     std::string board;
@@ -51,6 +65,7 @@ struct SweepOutcome {
     circuit::ToleranceBand band;
     std::vector<extract::GapRow> gap;
     std::vector<extract::FaultCandidate> diagnosis;
+    SessionAnalysis analysis;  // everything the reports need, computed once
     bool out_of_band() const;
 };
 
@@ -59,19 +74,7 @@ struct SweepOutcome {
 SweepOutcome run_sweep(const SweepOptions& options, store::Archive& archive, std::ostream& out, std::ostream& progress,
                        std::istream& in);
 
-// The gap table and diagnosis of a stored session (used by sweep and report).
-struct SessionAnalysis {
-    std::string predicted_design_json;  // the design as stored with the session
-    circuit::BenchLoading loading;       // what the session's bench adds to it
-    double current_limit_a = 0;
-    fit::ResponseFit fit;
-    circuit::Prediction prediction;
-    circuit::ToleranceBand band;
-    std::vector<DcReading> dc;
-    double quiescent_a = 0;
-    std::vector<extract::GapRow> gap;
-    std::vector<extract::FaultCandidate> diagnosis;
-};
+// Recomputes a stored session's analysis (report uses it; sweep calls it once at the end).
 SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id, int tolerance_runs = 2000);
 
 }  // namespace ampbench::procedures
