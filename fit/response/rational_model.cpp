@@ -3,7 +3,6 @@
 
 #include <cmath>
 #include <numbers>
-#include <regex>
 
 #include <fmt/format.h>
 
@@ -34,16 +33,35 @@ std::string RationalOrder::name() const {
 }
 
 RationalOrder RationalOrder::parse(const std::string& text) {
-    static const std::regex form(R"(rational:(\d)(?:/(\d))?,(\d)(?:\+(\d)c)?)");
-    std::smatch m;
-    if (!std::regex_match(text, m, form))
-        throw FitInputError(fmt::format("model '{}': expected auto or rational:L,H (e.g. rational:2,2, "
-                                        "rational:3/1,2, rational:2,1+1c)", text));
+    // Grammar: rational:L[/Z],H[+Pc] with single digits (hand-parsed: <regex> trips GCC 12's
+    // maybe-uninitialized warning under the sanitizers).
+    const auto bad = [&] {
+        return FitInputError(fmt::format("model '{}': expected auto or rational:L,H (e.g. rational:2,2, "
+                                          "rational:3/1,2, rational:2,1+1c)", text));
+    };
+    const std::string prefix = "rational:";
+    if (text.rfind(prefix, 0) != 0) throw bad();
+    std::size_t i = prefix.size();
+    auto digit = [&]() {
+        if (i >= text.size() || text[i] < '0' || text[i] > '9') throw bad();
+        return text[i++] - '0';
+    };
     RationalOrder o;
-    o.low_poles = std::stoi(m[1]);
-    o.low_zeros = m[2].matched ? std::stoi(m[2]) : 0;
-    o.high_poles = std::stoi(m[3]);
-    o.complex_pairs = m[4].matched ? std::stoi(m[4]) : 0;
+    o.low_poles = digit();
+    if (i < text.size() && text[i] == '/') {
+        ++i;
+        o.low_zeros = digit();
+    }
+    if (i >= text.size() || text[i] != ',') throw bad();
+    ++i;
+    o.high_poles = digit();
+    if (i < text.size() && text[i] == '+') {
+        ++i;
+        o.complex_pairs = digit();
+        if (i >= text.size() || text[i] != 'c') throw bad();
+        ++i;
+    }
+    if (i != text.size()) throw bad();
     if (o.low_zeros > o.low_poles)
         throw FitInputError(fmt::format("model '{}': {} finite low zeros but only {} low poles", text, o.low_zeros, o.low_poles));
     return o;
