@@ -289,7 +289,10 @@ void Sweeper::measure_plan(const std::vector<store::PlanPoint>& todo, size_t tot
             r.ratio = ratio / dn, r.phase_deg = phase / dn, r.in_amp = in_amp / dn, r.out_amp = out_amp / dn, r.thd = thd / dn;
             r.ratio_sd /= std::sqrt(dn), r.phase_sd_deg /= std::sqrt(dn);
         }
-        if (r.thd > o_.thd_limit) {
+        // THD of an output buried in noise measures the noise: lowering the level cannot help.
+        const bool resolved = r.out_amp > 30 * r.out_amp_sd;
+        if (r.thd > o_.thd_limit && !resolved) flags = flags.empty() ? "low signal" : flags + ",low signal";
+        if (r.thd > o_.thd_limit && resolved) {
             // Distorted: keep the reading (it is superseded by the retake), lower the level, retake.
             for (int retake = 0; retake < 3 && r.thd > o_.thd_limit; ++retake) {
                 current_[pp.index] = archive_.append_point(session_id_, to_point(r, f, pp.index, "distorted"));
