@@ -127,6 +127,71 @@ double JigMeasurement::node_voltage(const std::string& node, const std::vector<d
     return x[reading_base + readings_.size()];
 }
 
+double JigMeasurement::driving_point_ohms(const std::string& at, const std::vector<double>& x,
+                                          double gm, double g_pi) const {
+    // Small-signal nodal analysis: every node but ground and the supply is free (a read node
+    // moves when the meter loads its neighbour's node). Capacitors are open at DC; the DUT is a
+    // hybrid-pi (r_pi between b and e, g_m v_be from c to e; output resistance neglected, as
+    // the readings do not give it). Same stamp for npn and pnp.
+    std::vector<std::string> free;
+    for (const auto& n : jig_.nodes)
+        if (n != "0" && n != jig_.supply_node) free.push_back(n);
+    const size_t size = free.size();
+    const auto index = [&](const std::string& n) -> long {
+        for (size_t i = 0; i < size; ++i)
+            if (free[i] == n) return static_cast<long>(i);
+        return -1;
+    };
+    std::vector<double> g(size * size, 0.0);
+    const auto add = [&](long row, long col, double value) {
+        if (row >= 0 && col >= 0) g[static_cast<size_t>(row) * size + static_cast<size_t>(col)] += value;
+    };
+    const auto conductance = [&](long a, long b, double value) {
+        add(a, a, value);
+        add(b, b, value);
+        add(a, b, -value);
+        add(b, a, -value);
+    };
+    for (size_t i = 0; i < jig_.resistors.size(); ++i)
+        conductance(index(jig_.resistors[i].node_a), index(jig_.resistors[i].node_b), 1.0 / x[i]);
+    const long c = index(jig_.node_c), b = index(jig_.node_b), e = index(jig_.node_e);
+    conductance(b, e, g_pi);
+    add(c, b, gm);
+    add(c, e, -gm);
+    add(e, b, -gm);
+    add(e, e, gm);
+    // A tiny conductance to ground keeps nodes with no DC path (capacitors only) solvable.
+    for (size_t i = 0; i < size; ++i) g[i * size + i] += 1e-12;
+
+    // Solve G z = unit current into `at`, by Gaussian elimination with partial pivoting.
+    std::vector<double> rhs(size, 0.0);
+    const long target = index(at);
+    if (target < 0) return 0.0;
+    rhs[static_cast<size_t>(target)] = 1.0;
+    for (size_t k = 0; k < size; ++k) {
+        size_t pivot = k;
+        for (size_t r = k + 1; r < size; ++r)
+            if (std::fabs(g[r * size + k]) > std::fabs(g[pivot * size + k])) pivot = r;
+        if (pivot != k) {
+            for (size_t col = 0; col < size; ++col) std::swap(g[k * size + col], g[pivot * size + col]);
+            std::swap(rhs[k], rhs[pivot]);
+        }
+        for (size_t r = k + 1; r < size; ++r) {
+            const double f = g[r * size + k] / g[k * size + k];
+            if (f == 0.0) continue;
+            for (size_t col = k; col < size; ++col) g[r * size + col] -= f * g[k * size + col];
+            rhs[r] -= f * rhs[k];
+        }
+    }
+    std::vector<double> z(size, 0.0);
+    for (size_t k = size; k-- > 0;) {
+        double sum = rhs[k];
+        for (size_t col = k + 1; col < size; ++col) sum -= g[k * size + col] * z[col];
+        z[k] = sum / g[k * size + k];
+    }
+    return z[static_cast<size_t>(target)];
+}
+
 std::vector<double> JigMeasurement::compute(const std::vector<double>& x) const {
     const std::string* terminal_nodes[3] = {&jig_.node_c, &jig_.node_b, &jig_.node_e};
     const size_t reading_base = jig_.resistors.size();
@@ -137,15 +202,6 @@ std::vector<double> JigMeasurement::compute(const std::vector<double>& x) const 
     const auto voltage = [&](const std::string& n) {
         auto it = v.find(n);
         return it != v.end() ? it->second : node_voltage(n, x);
-    };
-    // Conductance of the resistors at a node, their far ends taken as AC ground.
-    const auto resistor_conductance = [&](const std::string& node) {
-        double g = 0.0;
-        for (size_t i = 0; i < jig_.resistors.size(); ++i) {
-            const auto& r = jig_.resistors[i];
-            if ((r.node_a == node) != (r.node_b == node)) g += 1.0 / x[i];
-        }
-        return g;
     };
     // Currents into the DUT's c, b, e by KCL; NaN where a terminal sits on a fixed node.
     const auto into_dut = [&]() {
@@ -172,33 +228,25 @@ std::vector<double> JigMeasurement::compute(const std::vector<double>& x) const 
     const double sign = jig_.pnp ? -1.0 : 1.0;
 
     if (meter_.input_ohms > 0.0) {
-        // The meter (to ground) draws V/R_in from the node it reads; the node sags by that
-        // current times the node's Thevenin resistance. Undo it with the Thevenin resistance
-        // from the resistors and the DUT's small-signal terminal resistance (hybrid-pi, output
-        // resistance neglected) estimated from the uncorrected readings.
-        const auto first = into_dut();
-        const double ic_a = sign * first[0];
-        const double ib_a = sign * first[1];
-        const double beta = ib_a != 0.0 ? ic_a / ib_a : 0.0;
-        const bool active = ic_a > 0.0 && beta > 0.0 && std::isfinite(beta);
-        const double r_pi = active ? beta * kThermalVoltage / ic_a : HUGE_VAL;
-        const auto external = [&](const std::string& node) {
-            if (fixed(node)) return 0.0;
-            const double g = resistor_conductance(node);
-            return g > 0.0 ? 1.0 / g : HUGE_VAL;
-        };
-        std::map<std::string, double> corrected;
-        for (size_t i = 0; i < readings_.size(); ++i) {
-            const std::string& node = readings_[i];
-            if (fixed(node)) continue;
-            double g = resistor_conductance(node);
-            if (active) {
-                if (node == jig_.node_b) g += 1.0 / (r_pi + (beta + 1.0) * external(jig_.node_e));
-                if (node == jig_.node_e) g += (beta + 1.0) / (r_pi + external(jig_.node_b));
+        // The meter (to ground) draws exactly V_read / R_in from the node it reads, and the
+        // node sags by that current times the jig's driving-point impedance there. Undo it with
+        // the impedance of the jig linearised at the operating point (hybrid-pi from the
+        // readings); two passes so g_m and r_pi come from corrected readings.
+        for (int pass = 0; pass < 2; ++pass) {
+            const auto currents = into_dut();
+            const double ic_a = sign * currents[0], ib_a = sign * currents[1];
+            const double beta = ib_a != 0.0 ? ic_a / ib_a : 0.0;
+            const bool active = ic_a > 0.0 && beta > 0.0 && std::isfinite(beta);
+            const double gm = active ? ic_a / kThermalVoltage : 0.0;
+            std::map<std::string, double> corrected;
+            for (size_t i = 0; i < readings_.size(); ++i) {
+                const std::string& node = readings_[i];
+                if (fixed(node)) continue;
+                const double z = driving_point_ohms(node, x, gm, active ? gm / beta : 0.0);
+                corrected[node] = x[reading_base + i] * (1.0 + z / meter_.input_ohms);
             }
-            if (g > 0.0) corrected[node] = x[reading_base + i] * (1.0 + 1.0 / (g * meter_.input_ohms));
+            v = std::move(corrected);
         }
-        v = std::move(corrected);
     }
 
     const auto in = into_dut();
@@ -221,6 +269,12 @@ void set_outputs(DutOperatingPoint& op, const std::vector<double>& value,
     // Below a picoampere the base current is leakage or noise, not a gain.
     if (!(op.ib_a.value > 1e-12) || !(op.hfe.value > 0.0))
         op.problem = "no forward base current (open junction or reversed device?)";
+    // common practice: below about 0.3 V the collector junction conducts and I_C / I_B is the
+    // forced gain of a saturated transistor, not its hFE.
+    else if (op.vce_v.value < 0.3)
+        op.problem = fmt::format("the device is saturated (V_CE {:.3g} V); hFE cannot be measured "
+                                 "in this jig",
+                                 op.vce_v.value);
 }
 
 }  // namespace

@@ -77,6 +77,9 @@ private:
     // The six outputs for one vector of input values (order of inputs()).
     std::vector<double> compute(const std::vector<double>& x) const;
     double node_voltage(const std::string& node, const std::vector<double>& x) const;
+    // The jig's small-signal impedance from `at` to ground, the DUT linearised as a hybrid-pi.
+    double driving_point_ohms(const std::string& at, const std::vector<double>& x, double gm,
+                              double g_pi) const;
 
     JigDesign jig_;
     std::vector<std::string> readings_;

@@ -22,7 +22,7 @@ JigDesign sample_jig() {
 
 // A plausible set of readings of the sample jig (npn, beta near 200).
 const std::map<std::string, double> kReadings = {
-    {"vcc", 10.0}, {"b", 1.1682}, {"c", 5.2845}, {"e", 0.47382}};
+    {"vcc", 10.0}, {"b", 1.1682}, {"c", 6.7995}, {"e", 0.47382}};
 
 JigDesign jig_from(const std::string& parts, const std::string& supply = "vcc") {
     return parse_jig_design(R"({"format": "ampbench-design/1", "supply": {"node": ")" + supply +
@@ -36,13 +36,13 @@ JigDesign jig_from(const std::string& parts, const std::string& supply = "vcc") 
 TEST_CASE("currents by KCL with an ideal meter", "[fit][lot]") {
     const JigMeasurement m(sample_jig(), {"vcc", "b", "c", "e"}, MeterModel{0.0, 0.0005});
     const auto op = m.evaluate(kReadings);
-    const double ib = (10.0 - 1.1682) / 390e3, ic = (10.0 - 5.2845) / 1e3, ie = 0.47382 / 100.0;
+    const double ib = (10.0 - 1.1682) / 390e3, ic = (10.0 - 6.7995) / 680.0, ie = 0.47382 / 100.0;
     CHECK(op.ib_a.value == Approx(ib).epsilon(1e-12));
     CHECK(op.ic_a.value == Approx(ic).epsilon(1e-12));
     CHECK(op.ie_a.value == Approx(ie).epsilon(1e-12));
     CHECK(op.hfe.value == Approx(ic / ib).epsilon(1e-12));
     CHECK(op.vbe_v.value == Approx(1.1682 - 0.47382).epsilon(1e-12));
-    CHECK(op.vce_v.value == Approx(5.2845 - 0.47382).epsilon(1e-12));
+    CHECK(op.vce_v.value == Approx(6.7995 - 0.47382).epsilon(1e-12));
     CHECK(op.problem.empty());
 }
 
@@ -51,7 +51,7 @@ TEST_CASE("GUM sensitivities match the analytic derivatives", "[fit][lot]") {
     // so the relative variance is the sum of the squared relative terms below.
     const JigMeasurement m(sample_jig(), {"vcc", "b", "c", "e"}, MeterModel{0.0, 0.0005});
     const auto op = m.evaluate(kReadings);
-    const double vcc = 10.0, vb = 1.1682, vc = 5.2845;
+    const double vcc = 10.0, vb = 1.1682, vc = 6.7995;
     const double u_r = 0.01 / std::sqrt(3.0);              // 1 % tolerance, uniform
     const auto u_v = [](double v) { return 0.0005 * v / std::sqrt(3.0); };  // meter, uniform
     const double rel2 = 2 * u_r * u_r + std::pow(u_v(vc) / (vcc - vc), 2) +
@@ -119,10 +119,13 @@ TEST_CASE("a pnp jig gives positive currents and voltages", "[fit][lot]") {
     CHECK(op.hfe.value > 0);
 }
 
-TEST_CASE("an open base junction is reported, not divided by", "[fit][lot]") {
+TEST_CASE("an open base junction or a saturated device is reported", "[fit][lot]") {
     const JigMeasurement m(sample_jig(), {"vcc", "b", "c", "e"}, MeterModel{});
-    const auto op = m.evaluate({{"vcc", 10.0}, {"b", 10.0}, {"c", 10.0}, {"e", 0.0}});
-    CHECK_FALSE(op.problem.empty());
+    const auto open = m.evaluate({{"vcc", 10.0}, {"b", 10.0}, {"c", 10.0}, {"e", 0.0}});
+    CHECK_THAT(open.problem, Contains("no forward base current"));
+    const auto saturated = m.evaluate({{"vcc", 10.0}, {"b", 2.0}, {"c", 1.4}, {"e", 1.3}});
+    CHECK_THAT(saturated.problem, Contains("saturated"));
+    CHECK(m.evaluate(kReadings).problem.empty());
 }
 
 TEST_CASE("jig computation errors name the node", "[fit][lot]") {

@@ -25,7 +25,7 @@ LotPlan edited(const std::string& from, const std::string& to) {
     const std::string text = R"({
   "format": "ampbench-lot-plan/1", "part": "test", "jig": "jig-bc1.design.json", "dut": "Q1",
   "readings": ["vcc", "b", "c", "e"],
-  "jig_measured": { "RB": "389.6k", "RC": "998.7", "measured_on": "2026-11-20" },
+  "jig_measured": { "RB": "389.6k", "RC": "679.4", "measured_on": "2026-11-20" },
   "spec": { "conditions": { "ic_a": "5m", "vce_v": "5" },
             "hfe": {"min": "100", "max": "300"}, "vbe_v": {"min": "0.55", "max": "0.75"} },
   "sampling": { "n": 32, "c": 1 } })";
@@ -59,7 +59,7 @@ TEST_CASE("the sample plan loads and fits its jig", "[fit][lot]") {
 }
 
 TEST_CASE("a plan without measured values keeps the nominal jig", "[fit][lot]") {
-    const LotPlan plan = edited(R"("RB": "389.6k", "RC": "998.7", )", "");
+    const LotPlan plan = edited(R"("RB": "389.6k", "RC": "679.4", )", "");
     CHECK(plan.jig_measured.empty());
     const JigDesign jig = load_plan_jig(plan);
     CHECK(jig.resistor("RB")->ohms == Approx(390e3));
@@ -90,7 +90,7 @@ TEST_CASE("bad plans give one line naming file and key", "[fit][lot]") {
     bad(R"("measured_on": "2026-11-20")", R"("measured_on": "20 Nov")", "jig_measured.measured_on",
         "not a date");
     bad(R"(, "measured_on": "2026-11-20")", "", "jig_measured.measured_on", "missing");
-    bad(R"("RC": "998.7")", R"("RC": "-3")", "jig_measured.RC", "positive");
+    bad(R"("RC": "679.4")", R"("RC": "-3")", "jig_measured.RC", "positive");
     bad(R"("part": "test")", R"("parts": "test")", "parts", "unknown key");
     bad(R"("format": "ampbench-lot-plan/1")", R"("format": "ampbench-lot-plan/2")", "format",
         "newer");
@@ -114,7 +114,7 @@ TEST_CASE("plan checks against the lot quantity and the jig", "[fit][lot]") {
     bad_with_jig(R"("dut": "Q1")", R"("dut": "RB")", "dut", "'RB' is not a transistor");
     bad_with_jig(R"("vcc", "b", "c", "e")", R"("vcc", "b", "c", "x")", "readings[3]",
                  "node 'x' is not in");
-    bad_with_jig(R"("RC": "998.7")", R"("RQ": "998.7")", "jig_measured.RQ", "no part 'RQ'");
-    bad_with_jig(R"("RC": "998.7")", R"("C1": "998.7")", "jig_measured.C1", "not a resistor");
+    bad_with_jig(R"("RC": "679.4")", R"("RQ": "998.7")", "jig_measured.RQ", "no part 'RQ'");
+    bad_with_jig(R"("RC": "679.4")", R"("C1": "998.7")", "jig_measured.C1", "not a resistor");
     bad_with_jig(R"("jig-bc1.design.json")", R"("nowhere.design.json")", "jig", "cannot open");
 }
