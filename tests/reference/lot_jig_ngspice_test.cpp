@@ -5,7 +5,6 @@
 
 #include <cmath>
 #include <map>
-#include <regex>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -71,15 +70,18 @@ std::vector<std::map<std::string, double>> parse(const std::string& out) {
     std::vector<std::map<std::string, double>> states;
     std::istringstream in(out);
     std::string line;
-    const std::regex state_re(R"(^state (\d+)\s*$)");
-    const std::regex value_re(R"(^\s*(\S+)\s*=\s*([-+0-9.eE]+)\s*$)");
-    std::smatch m;
+    // Parsed by hand: std::regex trips GCC 12's -Wmaybe-uninitialized in the sanitized build.
     while (std::getline(in, line)) {
-        if (std::regex_match(line, m, state_re)) {
+        if (line.rfind("state ", 0) == 0) {
             states.emplace_back();
-        } else if (!states.empty() && std::regex_match(line, m, value_re)) {
-            states.back()[m[1]] = std::stod(m[2]);
+            continue;
         }
+        const auto eq = line.find(" = ");
+        if (states.empty() || eq == std::string::npos) continue;
+        std::istringstream name_in(line.substr(0, eq)), value_in(line.substr(eq + 3));
+        std::string name;
+        double value = 0.0;
+        if (name_in >> name && value_in >> value) states.back()[name] = value;
     }
     return states;
 }
