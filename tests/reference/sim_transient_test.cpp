@@ -133,7 +133,7 @@ std::vector<Waveform> ngspice_orbits(const Design& design, const std::vector<dou
 }  // namespace
 
 TEST_CASE("steady state of HVE-PA1 at 1 kHz matches ngspice .tran", "[reference][sim]") {
-    const Design design = load_design(std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/pa1.design.json");
+    const Design design = load_design(AMPBENCH_SOURCE_DIR "/sample_sessions/pa1.design.json");
     constexpr int kSteps = 200;
     // Source: ngspice `.tran` (trapezoidal, reltol 1e-5) run kSettleS from the operating point
     // with the same Gummel–Poon model card; the engine's orbit comes from shooting.
