@@ -24,7 +24,7 @@ double refine_maximum(AcAnalysis& ac, double lo, double hi, double* best_u) {
     double a = lo, b = hi;
     double x1 = b - r * (b - a), x2 = a + r * (b - a);
     double f1 = mag(x1), f2 = mag(x2);
-    for (int i = 0; i < 60 && b - a > 1e-9; ++i) {
+    for (int i = 0; i < 60 && b - a > 1e-6; ++i) {
         if (f1 < f2) {
             a = x1;
             x1 = x2;
@@ -50,7 +50,7 @@ double refine_crossing(AcAnalysis& ac, double u_a, double u_b, double target) {
     };
     double fa = fn(u_a), fb = fn(u_b);
     int side = 0;
-    for (int i = 0; i < 100 && std::abs(u_b - u_a) > 1e-12; ++i) {
+    for (int i = 0; i < 100 && std::abs(u_b - u_a) > 1e-10; ++i) {
         const double u = (u_a * fb - u_b * fa) / (fb - fa);
         const double fu = fn(u);
         if (fu == 0) return u;

@@ -11,7 +11,7 @@
 #include "fit/circuit/netlist.h"
 #include "fit/circuit/predict.h"
 #include "fit/circuit/tolerance.h"
-#include "reference/circuit_deck_support.h"
+#include "../reference/circuit_deck_support.h"
 
 using namespace ampbench;
 using namespace ampbench::circuit;

@@ -198,6 +198,10 @@ TEST_CASE("the fast AC path equals a dense complex LU", "[circuit][ac]") {
             const int out = nl.out - 1, in = nl.in - 1;
             CHECK(std::abs(fast[out] / fast[in] - ref[out] / ref[in]) <=
                   1e-5 * std::abs(ref[out] / ref[in]));
+            // The modal form behind point() and output_impedance().
+            const AcPoint pt = ac.point(f);
+            CHECK(std::abs(pt.gain - ref[out] / ref[in]) <= 1e-5 * std::abs(ref[out] / ref[in]));
+            CHECK(std::abs(pt.v_out - ref[out]) <= 1e-6 * scale);
         }
     }
 }
