@@ -25,9 +25,7 @@ struct DemoArgs {
     bool progress = true;
     int per_decade = 6;
     int tolerance_runs = 2000;
-    // Above a few hundred kHz the virtual bench's periodic-steady-state solver stops converging
-    // (its tolerance is tighter than the period map's conditioning), so the demo stays below.
-    double to_hz = 150e3;
+    std::optional<double> to_hz;  // default: a decade above the predicted f_high
 };
 
 fs::path find_samples(const std::string& given) {
@@ -117,7 +115,7 @@ void add_demo_command(CLI::App& app, Context& ctx) {
     c->add_option("--out", args->out, "Directory for the archive and reports (default ./ampbench-demo)");
     c->add_option("--samples", args->samples, "Directory holding the sample designs (default: found beside the program)");
     c->add_option("--per-decade", args->per_decade, "Points per decade of the base plan (default 6)")->check(CLI::Range(2, 40));
-    c->add_option("--to", args->to_hz, "Highest frequency of the plan, Hz (default 150 kHz)")->check(CLI::PositiveNumber);
+    c->add_option("--to", args->to_hz, "Highest frequency of the plan, Hz (default a decade above the predicted f_high)");
     c->add_option("--tolerance-runs", args->tolerance_runs, "Monte Carlo draws for the tolerance band (default 2000)")
         ->check(CLI::Range(100, 100000));
     c->add_flag("--no-progress", [args](std::int64_t) { args->progress = false; }, "No progress bar");
