@@ -115,7 +115,11 @@ void check_file_header(const std::string& path) {
     const std::uint32_t pages = be32(28);
     // The page count is trustworthy only when its version-valid-for matches the change counter.
     const bool count_valid = pages != 0 && be32(92) == be32(24);
-    if (count_valid &&
+    // A writer killed during a checkpoint can leave the main file shorter than its header says;
+    // the pages are still in the write-ahead log and SQLite restores them on open.
+    struct stat wal {};
+    const bool wal_pending = ::stat((path + "-wal").c_str(), &wal) == 0 && wal.st_size > 0;
+    if (count_valid && !wal_pending &&
         static_cast<std::uint64_t>(info.st_size) < std::uint64_t{pages} * page_size)
         throw StoreError(fmt::format(
             "archive {}: damaged (file is {} bytes, its header says {} pages of {} bytes; "
