@@ -243,6 +243,8 @@ public:
 
     virtual Lot add_lot(const Lot& lot) = 0;
     virtual std::optional<Lot> lot(const std::string& lot_code) = 0;
+    // Every lot, oldest first.
+    virtual std::vector<Lot> lots() = 0;
     virtual void set_lot_status(std::int64_t lot_id, const std::string& status) = 0;
     virtual Device add_device(const Device& device) = 0;
     virtual std::vector<Device> devices(std::int64_t lot_id) = 0;

@@ -1036,6 +1036,15 @@ std::optional<Lot> SqliteArchive::lot(const std::string& lot_code) {
     });
 }
 
+std::vector<Lot> SqliteArchive::lots() {
+    return impl_->guarded([&] {
+        std::vector<Lot> out;
+        auto& st = impl_->query(std::string("SELECT ") + lot_columns + " FROM lots ORDER BY id");
+        while (st.executeStep()) out.push_back(read_lot(st));
+        return out;
+    });
+}
+
 void SqliteArchive::set_lot_status(std::int64_t lot_id, const std::string& status) {
     impl_->guarded([&] {
         auto txn = impl_->write_transaction();

@@ -53,6 +53,7 @@ public:
 
     Lot add_lot(const Lot& lot) override;
     std::optional<Lot> lot(const std::string& lot_code) override;
+    std::vector<Lot> lots() override;
     void set_lot_status(std::int64_t lot_id, const std::string& status) override;
     Device add_device(const Device& device) override;
     std::vector<Device> devices(std::int64_t lot_id) override;

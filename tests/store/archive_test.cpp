@@ -344,6 +344,14 @@ TEST_CASE("lots and devices round-trip", "[store]") {
     CHECK(again->status == "accepted");
     CHECK(again->quantity == 500);
     CHECK(again->plan_json == lot.plan_json);
+    Lot other;
+    other.lot_code = "LOT-2611-BC2";
+    archive->add_lot(other);
+    const auto all = archive->lots();
+    REQUIRE(all.size() == 2);
+    CHECK(all[0].lot_code == "LOT-2611-BC1");
+    CHECK(all[0].status == "accepted");
+    CHECK(all[1].lot_code == "LOT-2611-BC2");
     const auto devices = archive->devices(stored.id);
     REQUIRE(devices.size() == 3);
     CHECK(devices[0].id == first.id);
