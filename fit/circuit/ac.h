@@ -32,7 +32,8 @@ public:
 
     // Fast path: O(n²) per frequency after one O(n³) Hessenberg reduction per update.
     AcPoint point(double freq_hz);
-    std::complex<double> gain(double freq_hz) { return point(freq_hz).gain; }
+    // The gain alone, the same as point(f).gain but cheaper.
+    std::complex<double> gain(double freq_hz);
     // Thevenin impedance at the out probe (generator EMF zeroed, its resistance kept).
     std::complex<double> output_impedance(double freq_hz);
     // Every MNA unknown (node voltages 1..N−1, then branch currents) for the generator drive.
