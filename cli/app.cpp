@@ -38,6 +38,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     add_import_command(app, ctx);
     add_boards_command(app, ctx);
     add_lot_command(app, ctx);
+    add_lots_command(app, ctx);
     add_fit_command(app, ctx);
     add_sweep_command(app, ctx);
     add_report_command(app, ctx);

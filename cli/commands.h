@@ -15,6 +15,7 @@ void add_export_command(CLI::App& app, Context& ctx);
 void add_import_command(CLI::App& app, Context& ctx);
 void add_boards_command(CLI::App& app, Context& ctx);
 void add_lot_command(CLI::App& app, Context& ctx);
+void add_lots_command(CLI::App& app, Context& ctx);
 void add_fit_command(CLI::App& app, Context& ctx);
 void add_sweep_command(CLI::App& app, Context& ctx);
 void add_report_command(CLI::App& app, Context& ctx);

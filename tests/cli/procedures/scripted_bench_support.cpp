@@ -52,6 +52,15 @@ private:
             replies_.push_back("Scripted,Bench," + role_ + ",1.0");
         } else if (line == "*OPC?") {
             replies_.push_back("1");
+        } else if (line == "READ?") {
+            std::string channel = state_->settings[role_ + ":ROUTe:CLOSe"];
+            if (channel.rfind("(@", 0) == 0 && channel.size() > 3) channel = channel.substr(2, channel.size() - 3);
+            if (auto t = state_->meter_text.find(channel); t != state_->meter_text.end()) {
+                replies_.push_back(t->second);
+            } else {
+                auto v = state_->meter_volts.find(channel);
+                replies_.push_back(fmt::format("{:.9g}", v == state_->meter_volts.end() ? 0.0 : v->second));
+            }
         } else if (line == "MEASure:CURRent:DC?") {
             replies_.push_back(fmt::format("{:.9g}", state_->quiescent_a));
         } else if (is_query) {
@@ -103,6 +112,16 @@ std::unique_ptr<drivers::Supply> scripted_supply(std::shared_ptr<ScriptedBenchSt
     drivers::Profile p = generic_profile();
     auto session = std::make_unique<drivers::ScpiSession>(std::make_unique<ScriptedTransport>("supply", state), p.session);
     return std::make_unique<drivers::Supply>(std::move(session), p);
+}
+
+}  // namespace ampbench::testing
+
+namespace ampbench::testing {
+
+std::unique_ptr<drivers::Meter> scripted_meter(std::shared_ptr<ScriptedBenchState> state) {
+    drivers::Profile p = generic_profile();
+    auto session = std::make_unique<drivers::ScpiSession>(std::make_unique<ScriptedTransport>("meter", state), p.session);
+    return std::make_unique<drivers::Meter>(std::move(session), p);
 }
 
 }  // namespace ampbench::testing
