@@ -28,6 +28,8 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
         const auto j = nlohmann::json::parse(f.params_json);
         bench = parse_bench_file(j.at("bench_text").get<std::string>(), detail.session.bench_file);
         a.quiescent_a = j.value("quiescent_a", 0.0);
+        // A resumed session has one setup record per run; the latest DC readings stand.
+        a.dc.clear();
         for (const auto& d : j.at("dc"))
             a.dc.push_back({d.at("channel").get<std::string>(), d.at("node").get<std::string>(), d.at("volts").get<double>(),
                             d.at("u_v").get<double>(), 0.0});
@@ -92,7 +94,14 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
 
     bool out = false;
     for (const auto& row : a.gap) out = out || row.verdict == extract::kOutOfBand;
-    if (out && !samples.empty()) a.diagnosis = extract::diagnose(design, loading, samples);
+    if (out && !samples.empty()) {
+        // The bias readings let the diagnosis tell a silent output with a healthy bias (an open
+        // coupling capacitor) from one with a starved or saturated transistor.
+        extract::DcEvidence dc;
+        for (const DcReading& d : a.dc) dc.nodes.push_back({d.node, d.volts, d.u_v});
+        if (a.quiescent_a > 0) dc.supply_current_a = a.quiescent_a, dc.supply_current_u_a = (0.01 * a.quiescent_a + 1e-4) / std::sqrt(3.0);
+        a.diagnosis = extract::diagnose(design, loading, samples, dc);
+    }
     return a;
 }
 

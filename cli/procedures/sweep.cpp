@@ -93,7 +93,7 @@ private:
     std::istream& in_;
 
     BenchFile bench_;
-    std::string bench_text_, design_text_;
+    std::string bench_text_, design_text_, board_serial_;
     circuit::Design design_;
     circuit::BenchLoading loading_;
     circuit::Prediction pred_;
@@ -313,8 +313,26 @@ SweepOutcome Sweeper::run() {
     wall_start_ = std::chrono::steady_clock::now();
     bench_text_ = read_text(o_.bench_path);
     bench_ = load_bench_file(o_.bench_path);
-    design_text_ = read_text(o_.design_path);
-    design_ = circuit::load_design(o_.design_path);
+    board_serial_ = o_.board_serial;
+    if (o_.resume_session) {
+        // A resumed session measures the design it was started with, stored in the archive.
+        const auto session = archive_.session(*o_.resume_session);
+        const std::string where = fmt::format("session {}", *o_.resume_session);
+        if (!session) throw InputError("--resume", "SESSION", fmt::format("no session {} in the archive", *o_.resume_session));
+        if (session->kind != store::SessionKind::sweep)
+            throw InputError("--resume", "SESSION", fmt::format("session {} is a {} session, not a sweep", session->id, store::to_string(session->kind)));
+        const store::SessionDetail detail = archive_.session_detail(*o_.resume_session);
+        if (!detail.board || detail.board->design_address.empty())
+            throw InputError(where, "design", "the session's board has no stored design");
+        const auto dr = archive_.design(detail.board->design_address);
+        if (!dr) throw StoreError(fmt::format("{}: design {} is missing from the archive", where, detail.board->design_address));
+        design_text_ = dr->canonical_json;
+        design_ = circuit::parse_design(design_text_, where + " design");
+        board_serial_ = detail.session.board_serial;
+    } else {
+        design_text_ = read_text(o_.design_path);
+        design_ = circuit::load_design(o_.design_path);
+    }
     loading_ = circuit::bench_loading(bench_);
     const circuit::Netlist nl = circuit::build_netlist(design_, loading_);
     pred_ = circuit::predict(nl);
@@ -478,7 +496,7 @@ SweepOutcome Sweeper::run() {
         archive_.add_fit(fr);
     }
     result.session_id = session_id_;
-    result.board = o_.board_serial;
+    result.board = board_serial_;
     result.points = static_cast<int>(current_.size());
     if (vclock_) result.virtual_s = vclock_->now_s();
     result.level_vpp = level_vpp_;

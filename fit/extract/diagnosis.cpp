@@ -1,4 +1,5 @@
-// Candidate faults scored by the circuit engine's response at the measured frequencies.
+// Candidate faults scored by the circuit engine's response at the measured frequencies and its
+// operating point at the metered nodes.
 #include "fit/extract/diagnosis.h"
 
 #include <algorithm>
@@ -13,6 +14,7 @@
 #include "core/value.h"
 #include "fit/circuit/ac.h"
 #include "fit/circuit/dc.h"
+#include "fit/circuit/tolerance.h"
 
 namespace ampbench::extract {
 namespace {
@@ -40,8 +42,46 @@ bool is_passive(circuit::PartKind k) {
 
 }  // namespace
 
+std::vector<double> dc_spread(const circuit::Design& design, const circuit::BenchLoading& bench, const DcEvidence& dc,
+                              const DiagnosisOptions& o) {
+    const size_t n = dc.nodes.size() + (dc.supply_current_a > 0 ? 1 : 0);
+    std::vector<double> sum(n, 0.0), sum2(n, 0.0);
+    int runs = 0;
+    if (n == 0 || o.dc_spread_runs < 2) return std::vector<double>(n, 0.0);
+    try {
+        circuit::Netlist nl = circuit::build_netlist(design, bench);
+        const circuit::OperatingPoint nominal = circuit::solve_operating_point(nl);
+        std::vector<int> index;
+        for (const auto& d : dc.nodes) index.push_back(nl.node_index(circuit::canonical_node(d.node)));
+        for (const circuit::PartValues& v : circuit::draw_part_values(design, 1, o.dc_spread_runs)) {
+            try {
+                circuit::apply_values(v, nl);
+                const circuit::OperatingPoint op = circuit::solve_operating_point(nl, {}, &nominal.x);
+                for (size_t k = 0; k < n; ++k) {
+                    const double x = k < index.size() ? (index[k] >= 0 ? op.node_volts[static_cast<size_t>(index[k])] : 0.0)
+                                                      : op.supply_current_a;
+                    sum[k] += x;
+                    sum2[k] += x * x;
+                }
+                ++runs;
+            } catch (const Error&) {
+            }
+        }
+    } catch (const Error&) {
+    }
+    std::vector<double> sd(n, 0.0);
+    if (runs < 2) return sd;
+    const double nr = static_cast<double>(runs);
+    for (size_t k = 0; k < n; ++k) {
+        const double mean = sum[k] / nr;
+        sd[k] = std::sqrt(std::max(0.0, (sum2[k] - nr * mean * mean) / (nr - 1)));
+    }
+    return sd;
+}
+
 double response_score(const circuit::Design& design, const circuit::BenchLoading& bench,
-                      const std::vector<ResponseSample>& points, const DiagnosisOptions& o) {
+                      const std::vector<ResponseSample>& points, const DcEvidence& dc, const std::vector<double>& spread,
+                      const DiagnosisOptions& o) {
     try {
         const circuit::Netlist nl = circuit::build_netlist(design, bench);
         const circuit::OperatingPoint op = circuit::solve_operating_point(nl);
@@ -63,6 +103,22 @@ double response_score(const circuit::Design& design, const circuit::BenchLoading
                 ++n;
             }
         }
+        auto spread_of = [&](size_t k) { return k < spread.size() ? spread[k] : 0.0; };
+        for (size_t k = 0; k < dc.nodes.size(); ++k) {
+            const int idx = nl.node_index(circuit::canonical_node(dc.nodes[k].node));
+            if (idx < 0) continue;
+            // 1 mV floor: the meter's resolution is never the limit on a board's bias.
+            const double sd = std::max(std::hypot(dc.nodes[k].u_v, spread_of(k)), 1e-3);
+            const double r = (op.node_volts[static_cast<size_t>(idx)] - dc.nodes[k].volts) / sd;
+            chi2 += r * r;
+            ++n;
+        }
+        if (dc.supply_current_a > 0) {
+            const double sd = std::max(std::hypot(dc.supply_current_u_a, spread_of(dc.nodes.size())), 1e-6);
+            const double r = (op.supply_current_a - dc.supply_current_a) / sd;
+            chi2 += r * r;
+            ++n;
+        }
         return n > 0 ? chi2 / n : std::numeric_limits<double>::infinity();
     } catch (const Error&) {
         return std::numeric_limits<double>::infinity();
@@ -70,7 +126,9 @@ double response_score(const circuit::Design& design, const circuit::BenchLoading
 }
 
 std::vector<FaultCandidate> diagnose(const circuit::Design& design, const circuit::BenchLoading& bench,
-                                     const std::vector<ResponseSample>& points, const DiagnosisOptions& o) {
+                                     const std::vector<ResponseSample>& points, const DcEvidence& dc,
+                                     const DiagnosisOptions& o) {
+    const std::vector<double> spread = dc_spread(design, bench, dc, o);
     std::vector<FaultCandidate> all;
     for (size_t i = 0; i < design.parts.size(); ++i) {
         const circuit::Part& part = design.parts[i];
@@ -80,14 +138,14 @@ std::vector<FaultCandidate> diagnose(const circuit::Design& design, const circui
             d.parts[i].kind = circuit::PartKind::resistor;
             d.parts[i].value = std::string(fault) == "open" ? kOpenOhms : kShortOhms;
             FaultCandidate c{part.ref, fault, d.parts[i].value, part.value, fmt::format("{} {}", part.ref, fault), 0};
-            c.score = response_score(d, bench, points, o);
+            c.score = response_score(d, bench, points, dc, spread, o);
             if (std::isfinite(c.score)) all.push_back(c);
         }
         // Value change: a coarse log grid, then golden-section refinement around the best.
         auto score_at = [&](double log_scale) {
             circuit::Design d = design;
             d.parts[i].value = part.value * std::exp(log_scale);
-            return response_score(d, bench, points, o);
+            return response_score(d, bench, points, dc, spread, o);
         };
         const double lo = std::log(o.min_scale), hi = std::log(o.max_scale);
         const int grid = 24;

@@ -1,5 +1,5 @@
 // Single-fault diagnosis: which one part value change, open or short best explains a measured
-// response, found by fitting each candidate's predicted response to the measured points.
+// response and the DC readings, found by fitting each candidate's prediction to both.
 #pragma once
 #include <string>
 #include <vector>
@@ -14,6 +14,18 @@ struct ResponseSample {
     double gain_db = 0, gain_db_sd = 0;
     double phase_deg = 0, phase_deg_sd = 0;
     bool has_phase = true;
+};
+
+// What the meter and the supply read with the board powered: bias node voltages (by design node
+// name) and the quiescent supply current. An empty record leaves the diagnosis to the response.
+struct DcEvidence {
+    struct Node {
+        std::string node;
+        double volts = 0, u_v = 0;
+    };
+    std::vector<Node> nodes;
+    double supply_current_a = 0, supply_current_u_a = 0;  // 0 A: not read
+    bool empty() const { return nodes.empty() && !(supply_current_a > 0); }
 };
 
 struct FaultCandidate {
@@ -31,15 +43,27 @@ struct DiagnosisOptions {
     double max_scale = 50.0;
     double gain_sd_floor_db = 0.05;
     double phase_sd_floor_deg = 0.5;
+    // A DC reading's residual is scaled by its own uncertainty combined with the spread the part
+    // tolerances give that node on a good board (a seeded Monte Carlo of this many draws).
+    int dc_spread_runs = 200;
 };
 
-// The nominal design's score comes first in the search as "no single change" and is returned
-// when nothing beats it. Candidates whose operating point does not converge are skipped.
-std::vector<FaultCandidate> diagnose(const circuit::Design& design, const circuit::BenchLoading& bench,
-                                     const std::vector<ResponseSample>& points, const DiagnosisOptions& options = {});
+// The standard deviation each DC reading of `dc` has on good boards of `design` (part
+// tolerances and beta_range), in the order of dc.nodes, then the supply current when read.
+std::vector<double> dc_spread(const circuit::Design& design, const circuit::BenchLoading& bench, const DcEvidence& dc,
+                              const DiagnosisOptions& options = {});
 
-// Reduced chi-square of a design's predicted response against the points (+inf when its DC fails).
+// Candidates are scored on the response points and, when given, the DC readings: a fault
+// that silences the output (an open input capacitor, a starved transistor) is told apart by
+// whether it moves the bias. Candidates whose operating point does not converge are skipped.
+std::vector<FaultCandidate> diagnose(const circuit::Design& design, const circuit::BenchLoading& bench,
+                                     const std::vector<ResponseSample>& points, const DcEvidence& dc = {},
+                                     const DiagnosisOptions& options = {});
+
+// Reduced chi-square of a design's prediction against the points and DC readings (+inf when its
+// DC fails). `spread` is dc_spread() of the nominal design (empty: readings' own uncertainty).
 double response_score(const circuit::Design& design, const circuit::BenchLoading& bench,
-                      const std::vector<ResponseSample>& points, const DiagnosisOptions& options = {});
+                      const std::vector<ResponseSample>& points, const DcEvidence& dc = {},
+                      const std::vector<double>& spread = {}, const DiagnosisOptions& options = {});
 
 }  // namespace ampbench::extract

@@ -45,9 +45,12 @@ TEST_CASE("planted faults are out of band and diagnosed by part", "[sweep][fault
         std::string uri, serial, part, kind;
     };
     // C2 bypasses the emitter resistor (open: gain falls from ~45 dB to ~13 dB), R3 is the
-    // collector resistor (2.7 kΩ instead of 5.6 kΩ: gain −6 dB, bias moves).
+    // collector resistor (2.7 kΩ instead of 5.6 kΩ: gain −6 dB, bias moves), C1 couples the
+    // input probe's node to the base (open: the output sinks into the scope's noise while the
+    // bias stays where it was, so only the DC readings tell it from a starved transistor).
     const Case cases[] = {{"sim://?seed=2701&fault=C2:open", "PA1-2611-0101", "C2", "open"},
-                          {"sim://?seed=2702&value=R3:2k7", "PA1-2611-0102", "R3", "value"}};
+                          {"sim://?seed=2702&value=R3:2k7", "PA1-2611-0102", "R3", "value"},
+                          {"sim://?seed=2703&fault=C1:open", "PA1-2611-0103", "C1", "open"}};
     CliTempDir dir;
     for (const Case& c : cases) {
         SECTION(c.part + " " + c.kind) {
