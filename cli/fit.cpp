@@ -1,5 +1,7 @@
-// `ampbench fit (SESSION | --csv FILE) [--model auto|rational:L,H] [--json]`: fits a transfer
-// function to measured gain points and reports midband gain and corners with 95 % intervals.
+// `ampbench fit (SESSION | --csv FILE) [--design D] [--bench B] [--model auto|rational:L,H|circuit]
+// [--free LIST] [--json]`: fits a transfer function (or the design's circuit model) to measured
+// gain points and reports midband gain, corners and, for the circuit model, the effective beta,
+// each with its 95 % interval.
 #include <cmath>
 #include <optional>
 #include <ostream>
@@ -9,7 +11,12 @@
 #include <nlohmann/json.hpp>
 
 #include "cli/commands.h"
+#include "core/bench_file.h"
 #include "core/errors.h"
+#include "fit/circuit/design.h"
+#include "fit/circuit/netlist.h"
+#include "fit/extract/beta.h"
+#include "fit/response/circuit_fit.h"
 #include "fit/response/gain_points.h"
 #include "fit/response/response_fit.h"
 #include "store/archive.h"
@@ -23,6 +30,7 @@ struct FitArgs {
     std::optional<std::int64_t> session;
     std::string csv;
     std::string model = "auto";
+    std::string design, bench, free;
     bool json = false;
 };
 
@@ -33,7 +41,9 @@ ordered_json ci_or_null(const fit::DerivedValue& v) {
 // JSON has no infinities or NaN; an undetermined number is null.
 ordered_json finite_or_null(double v) { return std::isfinite(v) ? ordered_json(v) : ordered_json(nullptr); }
 
-ordered_json to_json(const fit::ResponseFit& f) {
+// The fields every fit reports, in the order of the JSON.
+template <class Fit>
+ordered_json common_json(const Fit& f) {
     ordered_json out;
     out["status"] = std::string(fit::to_string(f.report.status));
     out["usable"] = f.usable();
@@ -59,9 +69,41 @@ ordered_json to_json(const fit::ResponseFit& f) {
         params.push_back({{"name", p.name}, {"value", finite_or_null(p.value)}, {"sd", finite_or_null(p.sd)},
                           {"ci", {finite_or_null(p.ci_low), finite_or_null(p.ci_high)}}});
     out["params"] = params;
+    return out;
+}
+
+ordered_json to_json(const fit::ResponseFit& f) {
+    ordered_json out = common_json(f);
     ordered_json candidates = ordered_json::array();
     for (const auto& [name, bic] : f.candidates) candidates.push_back({{"model", name}, {"bic", finite_or_null(bic)}});
     out["candidates"] = candidates;
+    return out;
+}
+
+ordered_json to_json(const fit::CircuitFit& f, const extract::EffectiveBeta& b) {
+    ordered_json out = common_json(f);
+    out["beta_eff"] = finite_or_null(b.beta0);
+    out["beta_eff_ci"] = {finite_or_null(b.ci_low), finite_or_null(b.ci_high)};
+    out["beta_eff_bf"] = finite_or_null(b.bf);
+    out["beta_verdict"] = b.verdict;
+    out["beta"] = {{"transistor", b.transistor},
+                   {"beta0", finite_or_null(b.beta0)},
+                   {"beta0_ci", {finite_or_null(b.ci_low), finite_or_null(b.ci_high)}},
+                   {"bf", finite_or_null(b.bf)},
+                   {"bf_ci", {finite_or_null(b.bf_ci_low), finite_or_null(b.bf_ci_high)}},
+                   {"hfe", finite_or_null(b.hfe)},
+                   {"hfe_ci", {finite_or_null(b.hfe_ci_low), finite_or_null(b.hfe_ci_high)}},
+                   {"ic_a", finite_or_null(b.ic_a)},
+                   {"vce_v", finite_or_null(b.vce_v)},
+                   {"correlated_with", b.correlated_with},
+                   {"correlation", finite_or_null(b.correlation)},
+                   {"reason", b.reason},
+                   {"advice", b.advice}};
+    ordered_json priors = ordered_json::array();
+    for (const fit::CircuitParameter& p : f.parameters)
+        priors.push_back({{"name", p.name}, {"nominal", p.nominal}, {"free", p.free},
+                          {"prior_sd_ln", p.free ? ordered_json(nullptr) : ordered_json(p.prior_sd_ln)}});
+    out["parameters"] = priors;
     return out;
 }
 
@@ -85,7 +127,8 @@ fit::GainData session_points(store::Archive& archive, std::int64_t id, const std
     return d;
 }
 
-void print_human(std::ostream& out, const fit::ResponseFit& f) {
+template <class Fit>
+void print_human(std::ostream& out, const Fit& f) {
     out << f.brief() << "\n";
     if (f.midband_freq_hz.present) out << fmt::format("  midband frequency {:.4g} Hz, peaking {:.3f} dB\n", f.midband_freq_hz.value, f.peaking_db.value);
     for (const std::string& n : f.notes) out << "  note: " << n << "\n";
@@ -93,9 +136,30 @@ void print_human(std::ostream& out, const fit::ResponseFit& f) {
         out << fmt::format("  {:<16} {:>12.6g}  [{:.6g}, {:.6g}]\n", p.name, p.value, p.ci_low, p.ci_high);
 }
 
+void store_fit(store::Archive& archive, std::int64_t session, const std::string& kind, const std::string& model,
+               const ordered_json& json, bool usable, const fit::DerivedValue& gain, const fit::DerivedValue& f_low,
+               const fit::DerivedValue& f_high) {
+    store::FitRecord rec;
+    rec.session_id = session;
+    rec.kind = kind;
+    rec.model = model;
+    rec.params_json = json.at("params").dump();
+    rec.report_json = json.dump();
+    if (usable) {
+        rec.midband_gain_db = gain.value;
+        if (f_low.present) rec.f_low_hz = f_low.value;
+        if (f_high.present) rec.f_high_hz = f_high.value;
+    }
+    archive.add_fit(rec);
+}
+
 int run_fit(Context& ctx, const FitArgs& args) {
     if (args.session.has_value() == !args.csv.empty())
         throw UsageError("fit: give either a session number or --csv FILE");
+    // The circuit model when asked for, or when a design is given without a rational model.
+    const bool circuit_model = args.model == "circuit" || (args.model == "auto" && !args.design.empty());
+    if (circuit_model && args.design.empty()) throw UsageError("fit: --model circuit needs --design FILE");
+    if (!circuit_model && !args.free.empty()) throw UsageError("fit: --free applies to --model circuit only");
     fit::ResponseFitOptions options;
     options.model = args.model;
     std::unique_ptr<store::Archive> archive;
@@ -106,22 +170,37 @@ int run_fit(Context& ctx, const FitArgs& args) {
         archive = store::open_archive(ctx.db_path());
         data = session_points(*archive, *args.session, ctx.db_path());
     }
+    if (circuit_model) {
+        const circuit::Design design = circuit::load_design(args.design);
+        const circuit::BenchLoading loading =
+            args.bench.empty() ? circuit::BenchLoading{} : circuit::bench_loading(load_bench_file(args.bench));
+        fit::CircuitFitOptions copt;
+        copt.free = fit::parse_free_list(args.free);
+        fit::CircuitFit result = fit::fit_circuit(design, loading, data, copt);
+        if (args.bench.empty())
+            result.notes.push_back("no --bench: a 50 Ω generator and unloaded probes assumed");
+        const extract::EffectiveBeta beta = extract::effective_beta(result, design, loading);
+        const ordered_json json = to_json(result, beta);
+        if (archive)
+            store_fit(*archive, *args.session, "circuit", result.model_name(), json, result.usable(),
+                      result.midband_gain_db, result.f_low_hz, result.f_high_hz);
+        if (args.json) {
+            ctx.out << json.dump(2) << "\n";
+        } else {
+            print_human(ctx.out, result);
+            ctx.out << beta.brief() << "\n";
+            if (!beta.advice.empty()) ctx.out << "  " << beta.advice << "\n";
+        }
+        return 0;
+    }
     const fit::ResponseFit result = fit::fit_response(data, options);
     const ordered_json json = to_json(result);
-    if (archive) {
-        store::FitRecord rec;
-        rec.session_id = *args.session;
-        rec.kind = "response";
-        rec.model = result.model_name();
-        rec.params_json = json.at("params").dump();
-        rec.report_json = json.dump();
-        if (result.usable()) {
-            rec.midband_gain_db = result.midband_gain_db.value;
-            if (result.f_low_hz.present) rec.f_low_hz = result.f_low_hz.value;
-            if (result.f_high_hz.present) rec.f_high_hz = result.f_high_hz.value;
-        }
-        archive->add_fit(rec);
-    }
+    if (!args.design.empty() || !args.bench.empty())
+        ctx.err << "fit: the effective beta needs the circuit model (--model circuit); not computed for "
+                << result.model_name() << "\n";
+    if (archive)
+        store_fit(*archive, *args.session, "response", result.model_name(), json, result.usable(),
+                  result.midband_gain_db, result.f_low_hz, result.f_high_hz);
     if (args.json)
         ctx.out << json.dump(2) << "\n";
     else
@@ -138,8 +217,13 @@ void add_fit_command(CLI::App& app, Context& ctx) {
     cmd->add_option("session", args->session, "Session number in the archive (the fit is stored with it)");
     cmd->add_option("--csv", args->csv, "Measurement CSV (freq_hz,gain_db,phase_deg[,gain_db_sd,phase_deg_sd] "
                                         "or freq_hz,vin_vpp,vout_vpp[,phase_deg])");
-    cmd->add_option("--model", args->model, "auto (chosen by BIC) or rational:L,H (also L/Z for finite low "
-                                            "zeros, +Pc for complex pairs)");
+    cmd->add_option("--model", args->model, "auto (chosen by BIC; the circuit model when --design is given), "
+                                            "rational:L,H (also L/Z for finite low zeros, +Pc for complex pairs) or "
+                                            "circuit (the design's small-signal model)");
+    cmd->add_option("--design", args->design, "Design file (*.design.json) for the circuit model and the effective beta");
+    cmd->add_option("--bench", args->bench, "Bench file: generator output resistance and probe loading");
+    cmd->add_option("--free", args->free, "Circuit parameters to fit, e.g. Q1.beta,C3 (default: the first "
+                                          "transistor's beta); other parts' tolerances enter as priors");
     cmd->add_flag("--json", args->json, "Print JSON instead of text");
     cmd->callback([&ctx, args] { ctx.action = [&ctx, args] { return run_fit(ctx, *args); }; });
 }
