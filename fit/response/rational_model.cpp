@@ -120,6 +120,49 @@ std::complex<double> rational_log_response(const RationalOrder& o, double sign, 
     return ln_h;
 }
 
+std::complex<double> rational_response(const RationalOrder& o, double sign, const double* p, double f,
+                                       std::complex<double>* d) {
+    using C = std::complex<double>;
+    // One product instead of a sum of complex logarithms; the derivatives of ln H are the same
+    // terms as in rational_log_response and need no logarithm either.
+    const C jf(0.0, f);
+    C num = 1.0, den = 1.0;
+    if (d) d[0] = 1.0 / db_per_neper;
+    std::size_t k = 1;
+    const std::size_t zeros_at = 1 + static_cast<std::size_t>(o.low_poles);
+    const int origin_zeros = o.low_poles - o.low_zeros;
+    for (int i = 0; i < o.low_poles; ++i, ++k) {
+        const C dn = jf + p[k];
+        den *= dn;
+        if (i < origin_zeros) {
+            num *= jf;
+        } else {
+            const std::size_t kz = zeros_at + static_cast<std::size_t>(i - origin_zeros);
+            const C nz = jf + p[kz];
+            num *= nz;
+            if (d) d[kz] = 1.0 / nz;
+        }
+        if (d) d[k] = -1.0 / dn;
+    }
+    k += static_cast<std::size_t>(o.low_zeros);
+    for (int i = 0; i < o.high_poles; ++i, ++k) {
+        const C dn = 1.0 + jf / p[k];
+        den *= dn;
+        if (d) d[k] = (jf / (p[k] * p[k])) / dn;
+    }
+    for (int i = 0; i < o.complex_pairs; ++i, k += 2) {
+        const double f0 = p[k], q = p[k + 1], u = f / f0;
+        const C dn(1.0 - u * u, u / q);
+        den *= dn;
+        if (d) {
+            d[k] = -C(2 * u * u, -u / q) / dn / f0;
+            d[k + 1] = C(0.0, u / q) / dn / q;
+        }
+    }
+    const double gain = std::pow(10.0, p[0] / 20.0) * (sign < 0 ? -1.0 : 1.0);
+    return gain * num / den;
+}
+
 RationalResiduals::RationalResiduals(const GainData& data, RationalOrder order, double sign)
     : data_(data), order_(order), sign_(sign) {
     for (const GainPoint& pt : data.points) {
@@ -136,9 +179,9 @@ void RationalResiduals::residuals(std::span<const double> p, std::span<double> r
     const std::size_t n = data_.points.size();
     for (std::size_t i = 0; i < n; ++i) {
         const GainPoint& pt = data_.points[i];
-        const std::complex<double> ln_h = rational_log_response(order_, sign_, p.data(), pt.freq_hz);
-        r[i] = (ln_h.real() * db_per_neper - pt.gain_db) / sd_db_[i];
-        if (data_.has_phase) r[n + i] = wrap_deg(ln_h.imag() * deg_per_rad - pt.phase_deg) / sd_deg_[i];
+        const std::complex<double> h = rational_response(order_, sign_, p.data(), pt.freq_hz);
+        r[i] = (10.0 * std::log10(std::norm(h)) - pt.gain_db) / sd_db_[i];
+        if (data_.has_phase) r[n + i] = wrap_deg(std::arg(h) * deg_per_rad - pt.phase_deg) / sd_deg_[i];
     }
 }
 
@@ -147,7 +190,7 @@ bool RationalResiduals::jacobian(std::span<const double> p, std::span<double> ja
     std::vector<std::complex<double>> d(np);
     for (std::size_t i = 0; i < n; ++i) {
         std::fill(d.begin(), d.end(), 0.0);
-        rational_log_response(order_, sign_, p.data(), data_.points[i].freq_hz, d.data());
+        rational_response(order_, sign_, p.data(), data_.points[i].freq_hz, d.data());
         for (std::size_t j = 0; j < np; ++j) {
             jac[i * np + j] = d[j].real() * db_per_neper / sd_db_[i];
             if (data_.has_phase) jac[(n + i) * np + j] = d[j].imag() * deg_per_rad / sd_deg_[i];

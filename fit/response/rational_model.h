@@ -38,6 +38,11 @@ std::vector<std::string> rational_parameter_names(const RationalOrder& order);
 std::complex<double> rational_log_response(const RationalOrder& order, double sign, const double* p,
                                            double freq_hz, std::complex<double>* dlog_dp = nullptr);
 
+// H(f) itself (sign included) by one complex product, and optionally the same d ln H / d p_j:
+// the fast path for residuals and magnitudes, where the phase is only needed modulo 360°.
+std::complex<double> rational_response(const RationalOrder& order, double sign, const double* p,
+                                       double freq_hz, std::complex<double>* dlog_dp = nullptr);
+
 // Residuals on log magnitude (dB) and wrapped phase (degrees), each divided by its sd;
 // magnitude only when the data have no phase.
 class RationalResiduals : public ResidualModel {
