@@ -74,7 +74,9 @@ TEST_CASE("lot measure: an unknown lot, a bench without the tray or a channel, m
     check_one_line(unknown, 2);
     CHECK_THAT(unknown.err, Contains("no lot 'LOT-NOPE'"));
 
-    REQUIRE(start(dir, f, "10").code == 0);
+    REQUIRE(run_cli({"--db", dir.db(), "lot", "start", "--plan", f.plan, "--lot", "LOT-2611-BC1", "--qty", "10",
+                     "--supplier", "Harrow <Vale> & \"Sons\""})
+                .code == 0);
     const auto again = start(dir, f, "10");
     check_one_line(again, 2);
     CHECK_THAT(again.err, Contains("already in the archive"));
@@ -100,6 +102,14 @@ TEST_CASE("lot measure: an unknown lot, a bench without the tray or a channel, m
     CHECK_THAT(more.err, Contains("all 3 devices of the plan are measured"));
     const auto v = nlohmann::json::parse(run_cli({"--db", dir.db(), "lot", "verdict", "LOT-2611-BC1", "--json"}).out);
     CHECK(v["devices"].size() == 3);
+
+    // The report escapes what the user typed (as the sweep report does).
+    const auto rep = run_cli({"--db", dir.db(), "lot", "report", "LOT-2611-BC1", "--html", dir.path("r.html")});
+    REQUIRE(rep.code == 0);
+    const std::string html = read_text(dir.path("r.html"));
+    CHECK_THAT(html, Contains("Harrow &lt;Vale&gt; &amp;") && Contains("id=\"devices\""));
+    CHECK(html.find("<Vale>") == std::string::npos);
+    CHECK(html.find("<script") == std::string::npos);
 }
 
 TEST_CASE("lot measure --manual: a typed reading beyond the meter's range is one line and stays stored", "[cli][lot]") {
