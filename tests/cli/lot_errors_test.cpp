@@ -67,7 +67,7 @@ TEST_CASE("lot start refuses bad plans with one line naming the key", "[cli][lot
     }
 }
 
-TEST_CASE("lot measure: an unknown lot, a bench without the tray or a channel, more devices than the plan", "[cli][lot][sim]") {
+TEST_CASE("lot measure refuses an unknown lot or tray or channel and more devices than the plan", "[cli][lot][sim]") {
     CliTempDir dir;
     const auto f = write_lot_files(dir, "sim://?tray=3", [](nlohmann::json& p) { p["sampling"] = {{"n", 3}, {"c", 0}}; });
     const auto unknown = run_cli({"--db", dir.db(), "lot", "measure", "LOT-NOPE", "--bench", f.bench});

@@ -138,7 +138,7 @@ TEST_CASE("lot measure: the supply is off whenever the operator changes a device
     CHECK(devices[0].hfe.value() == Approx((10.0 - 6.67) / 680.0 / ((10.0 - 1.19) / 390e3)).epsilon(0.01));
 }
 
-TEST_CASE("lot measure: a reading out of the meter's range powers down, keeps the reading, one line", "[cli][lot][power]") {
+TEST_CASE("lot measure: a reading out of the meter's range powers down and keeps the reading", "[cli][lot][power]") {
     cli::testing::CliTempDir dir;
     auto archive = store::open_archive(dir.db());
     const store::Lot lot = add_test_lot(*archive);

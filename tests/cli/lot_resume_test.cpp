@@ -12,7 +12,7 @@
 using namespace ampbench::cli::testing;
 using Catch::Matchers::Contains;
 
-TEST_CASE("lot measure stops on q and resumes at the next device; a skip is replaced", "[cli][lot][sim]") {
+TEST_CASE("lot measure stops on q and resumes at the next device and replaces a skip", "[cli][lot][sim]") {
     CliTempDir dir;
     const LotFiles f = write_lot_files(dir, "sim://?tray=5&defective=0.03");
     REQUIRE(run_cli({"--db", dir.db(), "lot", "start", "--plan", f.plan, "--lot", "LOT-2611-BC1", "--qty", "500"}).code == 0);
