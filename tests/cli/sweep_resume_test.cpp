@@ -1,0 +1,213 @@
+// A sweep killed with SIGKILL part way, then `ampbench off` and `sweep --resume`, run as a user
+// would: the ampbench executable as a child process measuring `ampbench simulate` over TCP (so
+// `off` has real outputs to switch off), the archive read with the sqlite3 shell. Every planned
+// frequency ends with exactly one current reading.
+#include <fcntl.h>
+#include <poll.h>
+#include <signal.h>
+#include <spawn.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <chrono>
+#include <cstdio>
+#include <ctime>
+#include <string>
+#include <sstream>
+#include <thread>
+#include <vector>
+
+#include <catch2/catch.hpp>
+
+#include "cli_support.h"
+
+extern char** environ;
+
+using namespace ampbench::cli::testing;
+
+namespace {
+
+// One ampbench child, stdout to a pipe (read_line) or a log file, stderr to the log; SIGKILLed
+// by the destructor.
+class Child {
+public:
+    Child(const std::vector<std::string>& args, const std::string& log, bool pipe_stdout = false) {
+        std::vector<std::string> a{AMPBENCH_EXE};
+        a.insert(a.end(), args.begin(), args.end());
+        std::vector<char*> argv;
+        for (auto& s : a) argv.push_back(s.data());
+        argv.push_back(nullptr);
+        int fds[2] = {-1, -1};
+        posix_spawn_file_actions_t actions;
+        posix_spawn_file_actions_init(&actions);
+        posix_spawn_file_actions_addopen(&actions, STDERR_FILENO, log.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
+        if (pipe_stdout) {
+            REQUIRE(::pipe(fds) == 0);
+            posix_spawn_file_actions_adddup2(&actions, fds[1], STDOUT_FILENO);
+            posix_spawn_file_actions_addclose(&actions, fds[0]);
+        } else {
+            posix_spawn_file_actions_adddup2(&actions, STDERR_FILENO, STDOUT_FILENO);
+        }
+        posix_spawn_file_actions_addopen(&actions, STDIN_FILENO, "/dev/null", O_RDONLY, 0);
+        const int rc = ::posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), environ);
+        posix_spawn_file_actions_destroy(&actions);
+        if (fds[1] >= 0) ::close(fds[1]);
+        out_fd_ = fds[0];
+        REQUIRE(rc == 0);
+    }
+    Child(const Child&) = delete;
+    Child& operator=(const Child&) = delete;
+    ~Child() {
+        if (pid_ > 0) kill9();
+        if (out_fd_ >= 0) ::close(out_fd_);
+    }
+    bool running() {
+        int status = 0;
+        if (pid_ <= 0) return false;
+        if (::waitpid(pid_, &status, WNOHANG) == pid_) {
+            pid_ = -1;
+            return false;
+        }
+        return true;
+    }
+    void kill9() {
+        ::kill(pid_, SIGKILL);
+        ::waitpid(pid_, nullptr, 0);
+        pid_ = -1;
+    }
+    // The first stdout line, or "" after `timeout_s` (the sanitized build starts slowly).
+    std::string read_line(double timeout_s = 120.0) {
+        std::string line;
+        const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
+        while (std::chrono::steady_clock::now() < deadline) {
+            pollfd p{out_fd_, POLLIN, 0};
+            if (::poll(&p, 1, 200) <= 0) continue;
+            char c;
+            if (::read(out_fd_, &c, 1) != 1) break;
+            if (c == '\n') return line;
+            line += c;
+        }
+        return "";
+    }
+
+private:
+    pid_t pid_ = -1;
+    int out_fd_ = -1;
+};
+
+// One value from the archive by the sqlite3 shell (read-only, so the test never takes a lock
+// the sweep needs); "" when the query fails (e.g. before the schema exists).
+std::string sql(const std::string& db, const std::string& query) {
+    const std::string cmd = "sqlite3 -readonly -batch -noheader '" + db + "' \"" + query + "\" 2>/dev/null";
+    std::string out;
+    FILE* p = ::popen(cmd.c_str(), "r");
+    if (!p) return out;
+    char buf[4096];
+    for (size_t n; (n = std::fread(buf, 1, sizeof buf, p)) > 0;) out.append(buf, n);
+    ::pclose(p);
+    while (!out.empty() && (out.back() == '\n' || out.back() == '\r')) out.pop_back();
+    return out;
+}
+
+long sql_long(const std::string& db, const std::string& query) {
+    const std::string v = sql(db, query);
+    try {
+        return v.empty() ? -1 : std::stol(v);
+    } catch (const std::exception&) {
+        return -1;
+    }
+}
+
+}  // namespace
+
+TEST_CASE("a sweep killed with SIGKILL resumes to exactly one current point per planned frequency", "[sweep][resume]") {
+    REQUIRE(std::system("command -v sqlite3 > /dev/null 2>&1") == 0);
+    CliTempDir dir;
+    const std::string db = dir.db();
+    const std::string sim_bench = std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/virtual.bench.json";
+    const std::string design = std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/pa1.design.json";
+    // The virtual bench served over TCP, 20 virtual seconds per wall second.
+    Child server({"simulate", "--design", design, "--bench", sim_bench, "--seed", "51", "--time-scale", "20"}, dir.path("server.log"), true);
+    std::istringstream ready(server.read_line());
+    std::string word;
+    ready >> word;
+    REQUIRE(word == "ready");
+    std::string text = read_text(sim_bench);
+    for (int port; ready >> port;) {
+        const size_t at = text.find("sim://?seed=2611");
+        REQUIRE(at != std::string::npos);
+        text.replace(at, std::string("sim://?seed=2611").size(), "tcp://127.0.0.1:" + std::to_string(port));
+    }
+    REQUIRE(text.find("sim://") == std::string::npos);
+    const std::string bench = dir.path("tcp.bench.json");
+    write_text(bench, text);
+    const std::vector<std::string> plan{"--per-decade", "4", "--from", "5", "--to", "150e3", "--tolerance-runs", "100"};
+
+    long before_kill = 0;
+    {
+        std::vector<std::string> args{"--db", db, "sweep", "--bench", bench, "--design", design, "--board", "PA1-2611-0051", "--yes",
+                                      "--no-progress"};
+        args.insert(args.end(), plan.begin(), plan.end());
+        Child sweep(args, dir.path("first.log"));
+        // Kill once a few points are committed: the archive says when, not a guess at the speed.
+        const auto give_up = std::chrono::steady_clock::now() + std::chrono::minutes(10);
+        long planned = 0;
+        while (std::chrono::steady_clock::now() < give_up && sweep.running()) {
+            before_kill = sql_long(db, "SELECT count(*) FROM points WHERE session_id = 1");
+            planned = sql_long(db, "SELECT count(*) FROM plan_points WHERE session_id = 1");
+            if (before_kill >= 4) break;
+            std::this_thread::sleep_for(std::chrono::milliseconds(100));
+        }
+        INFO(read_text(dir.path("first.log")));
+        REQUIRE(sweep.running());
+        sweep.kill9();
+        before_kill = sql_long(db, "SELECT count(*) FROM points WHERE session_id = 1");
+        INFO("planned " << planned << ", measured " << before_kill << " before the kill");
+        REQUIRE(before_kill >= 4);
+        REQUIRE(before_kill < planned);  // killed in the middle, not after the last point
+    }
+    const std::string kept = sql(db, "SELECT group_concat(id || ':' || plan_index, ',') FROM points WHERE session_id = 1 AND superseded_by IS NULL");
+    CHECK(sql(db, "SELECT status FROM sessions WHERE id = 1") == "running");
+
+    // What a user runs after a crash.
+    const CliResult off = run_cli({"off", bench});
+    INFO(off.out << off.err);
+    CHECK(off.code == 0);
+    CHECK(off.out.find("supply output off") != std::string::npos);
+
+    // The archive takes a session as abandoned once its heartbeat is 15 s old and its pid is gone.
+    const long heartbeat = sql_long(db, "SELECT CAST(heartbeat_unix_s AS INTEGER) FROM sessions WHERE id = 1");
+    REQUIRE(heartbeat > 0);
+    while (static_cast<long>(std::time(nullptr)) < heartbeat + 17) std::this_thread::sleep_for(std::chrono::milliseconds(250));
+
+    std::vector<std::string> args{"--db", db, "sweep", "--bench", bench, "--resume", "1", "--yes", "--no-progress"};
+    args.insert(args.end(), plan.begin(), plan.end());
+    const CliResult resumed = run_cli(args);
+    INFO(resumed.out << resumed.err);
+    REQUIRE(resumed.code == 0);
+    CHECK(resumed.out.find("board PA1-2611-0051") != std::string::npos);
+
+    CHECK(sql(db, "SELECT status FROM sessions WHERE id = 1") == "complete");
+    const long planned = sql_long(db, "SELECT count(*) FROM plan_points WHERE session_id = 1");
+    INFO("planned " << planned);
+    REQUIRE(planned > before_kill);
+    // Every planned frequency has exactly one current point ...
+    CHECK(sql_long(db, "SELECT count(*) FROM plan_points pp WHERE pp.session_id = 1 AND (SELECT count(*) FROM points p WHERE "
+                       "p.session_id = 1 AND p.plan_index = pp.plan_index AND p.superseded_by IS NULL) <> 1") == 0);
+    CHECK(sql_long(db, "SELECT count(*) FROM points WHERE session_id = 1 AND superseded_by IS NULL") == planned);
+    // ... no frequency is planned twice, and every superseded reading is a retake of its own point.
+    CHECK(sql_long(db, "SELECT count(*) - count(DISTINCT freq_hz) FROM plan_points WHERE session_id = 1") == 0);
+    CHECK(sql_long(db, "SELECT count(*) FROM points p JOIN points q ON p.superseded_by = q.id WHERE p.session_id = 1 AND "
+                       "p.plan_index <> q.plan_index") == 0);
+    // The readings taken before the kill stand: resuming measured only what was missing.
+    std::string ids;
+    size_t kept_count = 0;
+    for (size_t at = 0; at < kept.size(); ++kept_count) {
+        const size_t colon = kept.find(':', at), comma = kept.find(',', at);
+        ids += (ids.empty() ? "" : ",") + kept.substr(at, colon - at);
+        at = comma == std::string::npos ? kept.size() : comma + 1;
+    }
+    REQUIRE(kept_count >= 3);
+    CHECK(sql_long(db, "SELECT count(*) FROM points WHERE session_id = 1 AND superseded_by IS NULL AND id IN (" + ids + ")") ==
+          static_cast<long>(kept_count));
+}
