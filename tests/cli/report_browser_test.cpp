@@ -64,7 +64,7 @@ std::string dump_dom(const std::string& html_path) {
 
 }  // namespace
 
-TEST_CASE("the HTML report renders in headless Chromium with its plots, gap table and escaped text", "[browser][report]") {
+TEST_CASE("the HTML report renders in headless Chromium with both plots and the gap table and escaped text", "[browser][report]") {
     if (!std::filesystem::exists(kChromium)) {
         WARN("SKIPPED: " << kChromium << " is not installed (Debian package chromium); the browser check did not run");
         return;
