@@ -123,14 +123,7 @@ struct AcAnalysis::Impl {
         if (nl.stimulus) b[nl.stimulus - 1] = 1.0 / nl.generator_ohms;
         auto branch = [&](int plus, int minus, int br) {
             const int k = nl.branch_unknown(br);
-            if (plus) {
-                g(plus - 1, k) += 1;
-                g(k, plus - 1) += 1;
-            }
-            if (minus) {
-                g(minus - 1, k) -= 1;
-                g(k, minus - 1) -= 1;
-            }
+            stamp_branch_incidence(g, plus, minus, k);
             return k;
         };
         for (const auto& s : nl.vsources) branch(s.plus, s.minus, s.branch);

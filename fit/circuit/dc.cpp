@@ -96,14 +96,7 @@ private:
         }
         auto branch = [&](int plus, int minus, int br, double volts) {
             const int k = nl_.branch_unknown(br);
-            if (plus) {
-                a_(plus - 1, k) += 1;
-                a_(k, plus - 1) += 1;
-            }
-            if (minus) {
-                a_(minus - 1, k) -= 1;
-                a_(k, minus - 1) -= 1;
-            }
+            stamp_branch_incidence(a_, plus, minus, k);
             b_[k] += volts;
         };
         for (const auto& s : nl_.vsources) branch(s.plus, s.minus, s.branch, scale * s.volts);

@@ -99,4 +99,18 @@ struct PartValues {
 PartValues nominal_values(const Design& design);
 void apply_values(const PartValues& values, Netlist& netlist);
 
+// Modified nodal analysis: the ±1 entries tying branch-current unknown k to the KCL rows of
+// its nodes and its own voltage row to their voltages (node 0 is ground and has no row).
+template <class Matrix>
+void stamp_branch_incidence(Matrix& m, int plus, int minus, int k) {
+    if (plus) {
+        m(plus - 1, k) += 1;
+        m(k, plus - 1) += 1;
+    }
+    if (minus) {
+        m(minus - 1, k) -= 1;
+        m(k, minus - 1) -= 1;
+    }
+}
+
 }  // namespace ampbench::circuit

@@ -168,14 +168,7 @@ struct TransientEngine::Impl {
         stim_row = nl.stimulus - 1;
         auto branch = [&](int plus, int minus, int br, double volts) {
             const int k = nl.branch_unknown(br);
-            if (plus) {
-                g_lin(plus - 1, k) += 1;
-                g_lin(k, plus - 1) += 1;
-            }
-            if (minus) {
-                g_lin(minus - 1, k) -= 1;
-                g_lin(k, minus - 1) -= 1;
-            }
+            stamp_branch_incidence(g_lin, plus, minus, k);
             b_const[k] += volts;
         };
         for (const auto& s : nl.vsources) branch(s.plus, s.minus, s.branch, s.volts);
