@@ -56,6 +56,7 @@ struct ScopeChannel {
     std::string name;
     int node = 0;               // 0: nothing connected
     double physical_ratio = 10;  // the probe actually fitted
+    double gain_error = 0;       // the channel's own vertical gain error (fraction)
     double ratio = 1;            // what the scope has been told
     bool ac = false;
     double bandwidth_hz = 0;     // 0 = full
@@ -167,6 +168,7 @@ struct VirtualBench::Impl {
                 ch.node = board.node_of_probe(spec_ch.probe);
                 ch.physical_ratio = spec_ch.ratio;
             }
+        for (size_t i = 0; i < scope.channels.size(); ++i) scope.channels[i].gain_error = virtual_scope_gain_error(s.seed, i, limits);
         Random gain(s.seed ^ 0x6A1EULL);
         const double accuracy = bench.meter.present ? bench.meter.accuracy : 0.0005;
         meter.gain_error = gain.uniform(-accuracy / 2, accuracy / 2);
@@ -283,7 +285,7 @@ struct VirtualBench::Impl {
         for (size_t c = 0; c < scope.channels.size(); ++c) {
             ScopeChannel& ch = scope.channels[c];
             std::vector<double> u = rec.volts[c];
-            const double gain = ch.ratio / ch.physical_ratio;
+            const double gain = ch.ratio / ch.physical_ratio * (1 + ch.gain_error);
             for (double& v : u) v *= gain;
             if (ch.ac) one_pole(u, rec.h_s, limits.scope_ac_corner_hz, true, period_samples);
             const double bw = ch.bandwidth_hz > 0 ? ch.bandwidth_hz : limits.scope_full_bandwidth_hz;
@@ -624,6 +626,13 @@ private:
 };
 
 }  // namespace
+
+double virtual_scope_gain_error(std::uint64_t seed, size_t channel, const SimLimits& limits) {
+    Random r(seed ^ 0x5C6A1EULL);
+    double g = 0;
+    for (size_t i = 0; i <= channel; ++i) g = r.uniform(-limits.scope_gain_error, limits.scope_gain_error);
+    return g;
+}
 
 std::unique_ptr<drivers::Transport> make_in_process_transport(VirtualBench& bench, const std::string& role) {
     return std::make_unique<InProcessTransport>(bench, role);

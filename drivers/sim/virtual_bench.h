@@ -2,6 +2,8 @@
 // scpi-generic profile, driven in virtual time by a Clock; in-process transports for the drivers.
 #pragma once
 
+#include <cstddef>
+#include <cstdint>
 #include <memory>
 #include <string>
 #include <string_view>
@@ -26,6 +28,7 @@ struct SimLimits {
     double scope_ac_corner_hz = 10.0;       // from memory: AC coupling corners sit near 10 Hz
     double scope_noise_fraction = 0.0015;   // input noise, fraction of full screen (rms)
     double scope_skew_s = 150e-12;          // channel k lags channel 1 by (k−1)·skew
+    double scope_gain_error = 0.003;        // each channel's vertical gain error, uniform within ±this
     double supply_max_v = 30.0, supply_max_a = 3.0;
 };
 
@@ -56,6 +59,10 @@ private:
     struct Impl;
     std::unique_ptr<Impl> impl_;
 };
+
+// The vertical gain error (fraction) the virtual scope of board spec `seed` has on channel
+// `channel` (0-based): drawn uniformly within ±limits.scope_gain_error, one draw per channel.
+double virtual_scope_gain_error(std::uint64_t seed, size_t channel, const SimLimits& limits = {});
 
 // An in-process transport for one role of a virtual bench.
 std::unique_ptr<drivers::Transport> make_in_process_transport(VirtualBench& bench, const std::string& role);
