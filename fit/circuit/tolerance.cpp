@@ -46,8 +46,16 @@ double percentile(const std::vector<double>& sorted, double q) {
     return sorted[i] + (pos - static_cast<double>(i)) * (sorted[j] - sorted[i]);
 }
 
+// The nodes whose DC voltage gets a band: every named node (internal base nodes excluded).
+std::vector<int> banded_nodes(const Netlist& nl) {
+    std::vector<int> nodes;
+    for (int i = 1; i < nl.node_count(); ++i)
+        if (nl.node_names[static_cast<size_t>(i)].find('#') == std::string::npos) nodes.push_back(i);
+    return nodes;
+}
+
 std::vector<std::optional<double>> quantities_of(const Response& r, const OperatingPoint& op,
-                                                 double nominal_phase) {
+                                                 double nominal_phase, const std::vector<int>& nodes) {
     // Phase unwrapped to within ±180° of the nominal so an inverting stage does not split
     // between +179° and −179°.
     double phase = r.midband_phase_deg;
@@ -65,6 +73,7 @@ std::vector<std::optional<double>> quantities_of(const Response& r, const Operat
                                          r.max_output_vpp,
                                          op.supply_current_a};
     for (const auto& t : op.transistors) q.emplace_back(t.ic_a);
+    for (int n : nodes) q.emplace_back(op.node_volts[static_cast<size_t>(n)]);
     return q;
 }
 
@@ -121,9 +130,11 @@ ToleranceBand tolerance_band(const Design& design, const BenchLoading& bench,
 
     Netlist nl = build_netlist(design, bench);
     const Prediction nominal = predict(nl, opt.predict);
-    const std::vector<std::string> names = tolerance_quantities(design);
+    std::vector<std::string> names = tolerance_quantities(design);
+    const std::vector<int> nodes = banded_nodes(nl);
+    for (int n : nodes) names.push_back("V(" + nl.node_names[static_cast<size_t>(n)] + ")");
     const auto nominal_q =
-        quantities_of(nominal.response, nominal.op, nominal.response.midband_phase_deg);
+        quantities_of(nominal.response, nominal.op, nominal.response.midband_phase_deg, nodes);
 
     const std::vector<Varied> varied = varied_parts(design);
     const std::vector<PartValues> draws = draw_part_values(design, opt.seed, opt.runs);
@@ -144,7 +155,7 @@ ToleranceBand tolerance_band(const Design& design, const BenchLoading& bench,
         }
         ac.update(nl, op);
         const Response resp = predict_response(ac, nl, op, opt.predict);
-        const auto q = quantities_of(resp, op, nominal.response.midband_phase_deg);
+        const auto q = quantities_of(resp, op, nominal.response.midband_phase_deg, nodes);
         for (size_t k = 0; k < nq; ++k)
             if (q[k] && std::isfinite(*q[k])) {
                 samples[k].push_back(*q[k]);

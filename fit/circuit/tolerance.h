@@ -21,7 +21,7 @@ struct ToleranceOptions {
 };
 
 struct QuantityBand {
-    std::string name;  // "midband_gain_db", "f_low_hz", "Q1.ic_a", …
+    std::string name;  // "midband_gain_db", "f_low_hz", "Q1.ic_a", "V(c)", …
     double nominal = 0, low = 0, median = 0, high = 0;
     int samples = 0;  // runs in which the quantity exists (a corner may be out of range)
 };
@@ -52,7 +52,8 @@ std::vector<PartValues> draw_part_values(const Design& design, std::uint64_t see
 ToleranceBand tolerance_band(const Design& design, const BenchLoading& bench,
                              const ToleranceOptions& options = {});
 
-// The quantity names in the order the band lists them, for a design's transistors.
+// The quantity names in the order the band lists them first, for a design's transistors; the
+// DC voltage of every named node follows them as "V(node)" (netlist node names).
 std::vector<std::string> tolerance_quantities(const Design& design);
 
 }  // namespace ampbench::circuit
