@@ -41,6 +41,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     add_lots_command(app, ctx);
     add_fit_command(app, ctx);
     add_sweep_command(app, ctx);
+    add_match_command(app, ctx);
     add_report_command(app, ctx);
     add_demo_command(app, ctx);
 

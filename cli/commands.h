@@ -18,6 +18,7 @@ void add_lot_command(CLI::App& app, Context& ctx);
 void add_lots_command(CLI::App& app, Context& ctx);
 void add_fit_command(CLI::App& app, Context& ctx);
 void add_sweep_command(CLI::App& app, Context& ctx);
+void add_match_command(CLI::App& app, Context& ctx);
 void add_report_command(CLI::App& app, Context& ctx);
 void add_demo_command(CLI::App& app, Context& ctx);
 

@@ -1,5 +1,7 @@
 // `ampbench demo [--out DIR]`: measures a sample board and a faulted one on the in-process
 // virtual bench, prints the gap tables and diagnosis, and writes both HTML reports.
+#include <algorithm>
+#include <cmath>
 #include <filesystem>
 #include <fstream>
 #include <sstream>
@@ -81,6 +83,24 @@ int run_demo(Context& ctx, const DemoArgs& a) {
     const std::vector<Board> boards{{"PA1-2611-0042", good_bench, "a board from lot LOT-2611-BC1"},
                                     {"PA1-2611-0043", bad_bench, "a board returned from test with low gain"}};
     std::vector<std::string> written;
+    {
+        // The station's scope is matched first, so the first board's sweep divides its channel
+        // mismatch out (the second board sits on another virtual bench with its own scope).
+        ctx.out << "\n== channel match of station B2's virtual scope (both probes on the generator output) ==\n";
+        procedures::MatchOptions mo;
+        mo.bench_path = good_bench.string();
+        mo.operator_name = "demo";
+        mo.assume_yes = true;
+        mo.progress = a.progress;
+        mo.plan.per_decade = 3;
+        mo.plan.from_hz = 1.0;
+        mo.plan.to_hz = std::max(20e6, a.to_hz.value_or(0.0));
+        const procedures::MatchOutcome m = procedures::run_match(mo, *archive, ctx.out, ctx.err, std::cin);
+        double worst_db = 0, worst_deg = 0;
+        for (const auto& row : m.rows) worst_db = std::max(worst_db, std::abs(row.gain_db)), worst_deg = std::max(worst_deg, std::abs(row.phase_deg));
+        ctx.out << fmt::format("match session {} · {} points · largest mismatch {:.3f} dB, {:.4f}°\n", m.session_id, m.rows.size(),
+                               worst_db, worst_deg);
+    }
     for (const Board& b : boards) {
         ctx.out << fmt::format("\n== HVE-PA1 {} ({}) on the virtual bench ==\n", b.serial, b.what);
         procedures::SweepOptions o;
@@ -94,8 +114,8 @@ int run_demo(Context& ctx, const DemoArgs& a) {
         o.tolerance_runs = a.tolerance_runs;
         o.plan.to_hz = a.to_hz;
         const procedures::SweepOutcome r = procedures::run_sweep(o, *archive, ctx.out, ctx.err, std::cin);
-        ctx.out << fmt::format("session {} · {} points · {:.1f} s of virtual time\n{}\n\n", r.session_id, r.points, r.virtual_s.value_or(0.0),
-                               r.fit.brief());
+        ctx.out << fmt::format("session {} · {} points · {:.1f} s of virtual time\n{}{}\n\n", r.session_id, r.points,
+                               r.virtual_s.value_or(0.0), report::readings_text(r.analysis), r.fit.brief());
         ctx.out << report::gap_table(r.gap);
         if (!r.diagnosis.empty()) ctx.out << "\n" << report::diagnosis_text(r.diagnosis);
         const fs::path html = out / fmt::format("{}.html", b.serial);

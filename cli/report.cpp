@@ -24,6 +24,17 @@ int run_report(Context& ctx, const ReportArgs& a) {
     auto archive = store::open_archive(ctx.db_path());
     if (!archive->session(a.session)) throw InputError(ctx.db_path(), "SESSION", fmt::format("no session {} in the archive", a.session));
     const store::SessionDetail detail = archive->session_detail(a.session);
+    if (detail.session.kind == store::SessionKind::match) {
+        if (!a.html.empty()) throw InputError(ctx.db_path(), "SESSION", fmt::format("session {} is a channel-match run; --html is for sweeps", a.session));
+        std::vector<procedures::MatchRow> rows;
+        for (const store::Point& p : detail.points)
+            if (!p.superseded_by)
+                rows.push_back({p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.0), p.phase_deg.value_or(0.0), p.phase_deg_sd.value_or(0.0)});
+        ctx.out << fmt::format("match session {} · {} · {} · taken {}\n", detail.session.id, detail.session.board_serial,
+                               store::to_string(detail.session.status), detail.session.started_utc)
+                << report::match_table(rows);
+        return 0;
+    }
     const procedures::SessionAnalysis analysis = procedures::analyse_session(*archive, a.session);
     if (!a.html.empty()) {
         const std::string text = report::html_report(detail, analysis);
@@ -40,7 +51,7 @@ int run_report(Context& ctx, const ReportArgs& a) {
         return 0;
     }
     ctx.out << fmt::format("session {} · board {} · {}\n", detail.session.id, detail.session.board_serial, store::to_string(detail.session.status));
-    ctx.out << analysis.fit.brief() << "\n\n" << report::gap_table(analysis.gap);
+    ctx.out << report::readings_text(analysis) << analysis.fit.brief() << "\n\n" << report::gap_table(analysis.gap);
     if (!analysis.diagnosis.empty()) ctx.out << "\n" << report::diagnosis_text(analysis.diagnosis);
     return 0;
 }

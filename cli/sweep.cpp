@@ -39,6 +39,9 @@ nlohmann::ordered_json outcome_json(const procedures::SweepOutcome& r) {
     j["fit"] = report::fit_json(r.fit);
     j["gap"] = report::gap_json(r.gap);
     j["diagnosis"] = report::diagnosis_json(r.diagnosis);
+    const nlohmann::ordered_json readings = report::readings_json(r.analysis);
+    j["method"] = readings.at("method");
+    j["match"] = readings.at("match");
     return j;
 }
 
@@ -56,7 +59,7 @@ int run_sweep_command(Context& ctx, SweepArgs& a) {
     } else {
         ctx.out << fmt::format("\nsession {} · board {} · {} points", r.session_id, r.board, r.points);
         if (r.virtual_s) ctx.out << fmt::format(" · {:.1f} s of virtual time", *r.virtual_s);
-        ctx.out << "\n" << r.fit.brief() << "\n\n" << report::gap_table(r.gap);
+        ctx.out << "\n" << report::readings_text(r.analysis) << r.fit.brief() << "\n\n" << report::gap_table(r.gap);
         if (!r.diagnosis.empty()) ctx.out << "\n" << report::diagnosis_text(r.diagnosis);
     }
     if (a.fail_on_out_of_band && r.out_of_band()) return static_cast<int>(ExitCode::out_of_band);

@@ -28,6 +28,14 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
         const auto j = nlohmann::json::parse(f.params_json);
         bench = parse_bench_file(j.at("bench_text").get<std::string>(), detail.session.bench_file);
         a.quiescent_a = j.value("quiescent_a", 0.0);
+        a.method = j.value("method", std::string("capture"));
+        if (j.contains("match")) {
+            const auto& m = j.at("match");
+            a.match = MatchUse{m.at("session").get<std::int64_t>(), m.at("taken_utc").get<std::string>(),
+                               m.at("age_days").get<double>(), 0, 0};
+        } else {
+            a.match.reset();
+        }
         // A resumed session has one setup record per run; the latest DC readings stand.
         a.dc.clear();
         for (const auto& d : j.at("dc"))
@@ -52,6 +60,8 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
     data.origin = where;
     data.has_phase = true;
     data.has_sd = true;
+    for (const store::Point& p : detail.points)
+        if (!p.superseded_by && !p.phase_deg) data.has_phase = false;  // amplitude method: magnitude only
     std::vector<extract::ResponseSample> samples;
     double sys_db = 0;
     for (const store::Point& p : detail.points) {
@@ -60,6 +70,7 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
         samples.push_back({p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.01), p.phase_deg.value_or(0.0), p.phase_deg_sd.value_or(0.1), p.phase_deg.has_value()});
         const auto s = nlohmann::json::parse(p.settings_json.empty() ? "{}" : p.settings_json);
         sys_db = std::max(sys_db, s.value("gain_db_sd_systematic", 0.0));
+        if (a.match) ++(s.contains("match_session") ? a.match->points_corrected : a.match->points_outside);
     }
     a.fit = fit::fit_response(fit::prepare_gain_data(data));
 
@@ -89,8 +100,10 @@ SessionAnalysis analyse_session(store::Archive& archive, std::int64_t session_id
         a.gap.push_back(extract::make_gap_row("supply_current_a", "A", a.prediction.op.supply_current_a, lo, hi, a.quiescent_a,
                                               (0.01 * a.quiescent_a + 1e-4) / std::sqrt(3.0)));
     }
-    for (const DcReading& d : a.dc)
-        a.gap.push_back(extract::make_gap_row(fmt::format("V({})", d.node), "V", d.predicted_v, std::nullopt, std::nullopt, d.volts, d.u_v));
+    for (const DcReading& d : a.dc) {
+        const auto [lo, hi] = band_of("V(" + circuit::canonical_node(d.node) + ")");
+        a.gap.push_back(extract::make_gap_row(fmt::format("V({})", d.node), "V", d.predicted_v, lo, hi, d.volts, d.u_v));
+    }
 
     bool out = false;
     for (const auto& row : a.gap) out = out || row.verdict == extract::kOutOfBand;

@@ -111,15 +111,33 @@ std::string safety_notice(double current_limit_a) {
         format_eng(current_limit_a, "A"));
 }
 
-void confirm_safety(std::ostream& out, std::istream& in, double current_limit_a, bool assume_yes) {
-    out << safety_notice(current_limit_a);
+void confirm_or_stop(std::ostream& out, std::istream& in, const std::string& notice, const std::string& question,
+                     const std::string& refusal, bool assume_yes) {
+    out << notice;
     if (assume_yes) return;
-    out << "Power the board now? [y/N] " << std::flush;
+    out << question << " [y/N] " << std::flush;
     std::string answer;
     if (!std::getline(in, answer)) answer.clear();
     while (!answer.empty() && std::isspace(static_cast<unsigned char>(answer.back()))) answer.pop_back();
-    if (answer != "y" && answer != "Y" && answer != "yes" && answer != "YES" && answer != "Yes")
-        throw SafetyStop("not confirmed: the board was not powered (pass --yes to skip the question)");
+    if (answer != "y" && answer != "Y" && answer != "yes" && answer != "YES" && answer != "Yes") throw SafetyStop(refusal);
+}
+
+void confirm_safety(std::ostream& out, std::istream& in, double current_limit_a, bool assume_yes) {
+    confirm_or_stop(out, in, safety_notice(current_limit_a), "Power the board now?",
+                    "not confirmed: the board was not powered (pass --yes to skip the question)", assume_yes);
+}
+
+std::string match_notice(double level_vpp) {
+    return fmt::format(
+        "Channel match\n"
+        "  * Clip both probes to the same node: the generator output (a T-piece or a short lead), or\n"
+        "    a board's input with the board unpowered. Both ground leads go to the same ground point.\n"
+        "  * No supply is switched on. The generator output is switched on at {} and off again at\n"
+        "    the end, on an error and on Ctrl-C.\n"
+        "  * On a mains-referenced circuit the scope's ground leads are tied to protective earth:\n"
+        "    clip them only to nodes that are at earth potential.\n"
+        "  These notes do not replace local electrical codes or your lab's safety rules; follow those.\n",
+        format_eng(level_vpp, "Vpp"));
 }
 
 }  // namespace ampbench::procedures

@@ -60,5 +60,10 @@ std::string safety_notice(double current_limit_a);
 
 // Prints the notice and asks on `in` unless assume_yes; SafetyStop when the answer is not yes.
 void confirm_safety(std::ostream& out, std::istream& in, double current_limit_a, bool assume_yes);
+// The same for any notice: prints it, asks `question` unless assume_yes, SafetyStop(refusal) on no.
+void confirm_or_stop(std::ostream& out, std::istream& in, const std::string& notice, const std::string& question,
+                     const std::string& refusal, bool assume_yes);
+// The cautions printed before a channel-match run (generator only, no board power).
+std::string match_notice(double level_vpp);
 
 }  // namespace ampbench::procedures

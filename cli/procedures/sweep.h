@@ -32,6 +32,15 @@ struct SweepOptions {
     std::string validate() const;  // empty when valid
 };
 
+// The channel-match run a sweep divided out of its readings (DESIGN.md §5: it replaces the
+// bench's systematic gain and skew terms wherever it covers the frequency).
+struct MatchUse {
+    std::int64_t session_id = 0;
+    std::string taken_utc;  // when the match run started
+    double age_days = 0;    // at the time of the sweep
+    int points_corrected = 0, points_outside = 0;
+};
+
 struct DcReading {
     std::string channel, node;
     double volts = 0, u_v = 0, predicted_v = 0;
@@ -40,6 +49,8 @@ struct DcReading {
 // The gap table and diagnosis of a stored session (used by sweep and report).
 struct SessionAnalysis {
     std::string predicted_design_json;  // the design as stored with the session
+    std::string method = "capture";      // how the readings were taken (capture or amplitude)
+    std::optional<MatchUse> match;       // the channel-match run used, if any
     circuit::BenchLoading loading;       // what the session's bench adds to it
     double current_limit_a = 0;
     fit::ResponseFit fit;
@@ -68,6 +79,35 @@ struct SweepOutcome {
     SessionAnalysis analysis;  // everything the reports need, computed once
     bool out_of_band() const;
 };
+
+// `ampbench match`: both probes on one node, a sweep of the two channels' mismatch, stored as a
+// dated match session of the scope (board serial match_serial(scope identity)).
+struct MatchOptions {
+    std::string bench_path, operator_name;
+    FrequencyPlanOptions plan;        // default 1 Hz .. 20 MHz, 4 per decade
+    std::optional<double> level_vpp;  // generator setting; default 1 Vpp within the bench's limit
+    int captures = 1;
+    bool assume_yes = false;
+    bool progress = true;
+};
+
+struct MatchRow {
+    double freq_hz = 0, gain_db = 0, gain_db_sd = 0, phase_deg = 0, phase_deg_sd = 0;
+};
+
+struct MatchOutcome {
+    std::int64_t session_id = 0;
+    std::string scope_serial;  // the board serial the run is stored under
+    std::vector<MatchRow> rows;
+    std::optional<double> virtual_s;
+};
+
+// The board serial a scope's match runs are stored under: "match:" + the manufacturer, model and
+// serial fields of its identity ("maker,model,serial,firmware").
+std::string match_serial(const std::string& scope_identity);
+
+MatchOutcome run_match(const MatchOptions& options, store::Archive& archive, std::ostream& out, std::ostream& progress,
+                       std::istream& in);
 
 // Runs the sweep; `out` receives the safety notice (and the question read from `in`), `progress`
 // the progress bar. Every exit powers the board down in reverse order.

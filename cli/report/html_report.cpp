@@ -197,6 +197,7 @@ std::string html_report(const store::SessionDetail& d, const procedures::Session
         h += "</ol>\n";
     }
     h += "<h2>Fit</h2>\n<p>" + esc(a.fit.brief()) + "</p>\n";
+    h += "<h2>Readings and channel match</h2>\n<pre id=\"readings\">" + esc(readings_text(a)) + "</pre>\n";
     h += "<h2>DC readings</h2>\n<table id=\"dc\"><tr><th>node</th><th>meter channel</th><th>measured</th><th>predicted</th></tr>";
     for (const auto& dc : a.dc)
         h += fmt::format("<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>", esc(dc.node), esc(dc.channel),

@@ -1,6 +1,7 @@
 // Gap table, diagnosis and fit as text and JSON.
 #include "cli/report/terminal.h"
 
+#include <algorithm>
 #include <cmath>
 
 #include <fmt/format.h>
@@ -90,6 +91,46 @@ ordered_json diagnosis_json(const std::vector<extract::FaultCandidate>& c) {
     ordered_json a = ordered_json::array();
     for (const auto& x : c) a.push_back({{"change", x.change}, {"ref", x.ref}, {"kind", x.kind}, {"score", finite_or_null(x.score)}});
     return a;
+}
+
+std::string readings_text(const procedures::SessionAnalysis& a) {
+    std::string t;
+    if (a.method == "amplitude")
+        t += "readings: the scope's own peak-to-peak measurement (magnitude only, no phase; about 1 % of full screen "
+             "per channel, a wider uncertainty than a waveform fit)\n";
+    else
+        t += "readings: captured waveforms of both channels, joint sine fit\n";
+    if (a.match)
+        t += fmt::format("channel match: session {}, taken {}, {:.1f} days before this sweep; divided out of {} point(s){}\n",
+                         a.match->session_id, a.match->taken_utc, a.match->age_days, a.match->points_corrected,
+                         a.match->points_outside ? fmt::format(", {} outside its range", a.match->points_outside) : std::string());
+    else
+        t += "channel match: none for this scope; the bench's systematic terms (scope gain accuracy, channel skew) stand\n";
+    return t;
+}
+
+nlohmann::ordered_json readings_json(const procedures::SessionAnalysis& a) {
+    nlohmann::ordered_json j;
+    j["method"] = a.method;
+    if (a.match)
+        j["match"] = {{"session", a.match->session_id}, {"taken_utc", a.match->taken_utc}, {"age_days", a.match->age_days},
+                      {"points_corrected", a.match->points_corrected}, {"points_outside", a.match->points_outside}};
+    else
+        j["match"] = nullptr;
+    return j;
+}
+
+std::string match_table(const std::vector<procedures::MatchRow>& rows) {
+    std::string t = fmt::format("{:>12}  {:>22}  {:>22}\n", "frequency", "gain out/in ± U", "phase out−in ± U");
+    double worst_db = 0, worst_deg = 0;
+    for (const auto& row : rows) {
+        t += fmt::format("{:>12}  {:>+11.4f} ± {:<6.4f} dB  {:>+10.4f} ± {:<6.4f} °\n", format_eng(row.freq_hz, "Hz", 4), row.gain_db,
+                         2 * row.gain_db_sd, row.phase_deg, 2 * row.phase_deg_sd);
+        worst_db = std::max(worst_db, std::abs(row.gain_db));
+        worst_deg = std::max(worst_deg, std::abs(row.phase_deg));
+    }
+    t += fmt::format("largest mismatch {:.4f} dB, {:.4f}° (U = 2u, 95 %)\n", worst_db, worst_deg);
+    return t;
 }
 
 }  // namespace ampbench::report

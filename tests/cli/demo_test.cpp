@@ -79,8 +79,13 @@ TEST_CASE("the demo measures a good and a faulted HVE-PA1 and writes both report
     CHECK(r.out.find(out_dir + "/PA1-2611-0042.html") != std::string::npos);
     CHECK(r.out.find(out_dir + "/PA1-2611-0043.html") != std::string::npos);
 
+    // Session 1 is the channel match of the first station's scope; the first board's sweep
+    // divides it out, the second board (another virtual bench, another scope) has none.
+    CHECK(good.find("channel match: session 1,") != std::string::npos);
+    CHECK(bad.find("channel match: none") != std::string::npos);
     auto archive = store::open_archive(out_dir + "/ampbench.sqlite");
-    for (const auto& [session, serial] : {std::pair<std::int64_t, std::string>{1, "PA1-2611-0042"}, {2, "PA1-2611-0043"}}) {
+    CHECK(archive->session_detail(1).session.kind == store::SessionKind::match);
+    for (const auto& [session, serial] : {std::pair<std::int64_t, std::string>{2, "PA1-2611-0042"}, {3, "PA1-2611-0043"}}) {
         const store::SessionDetail d = archive->session_detail(session);
         CHECK(d.session.board_serial == serial);
         size_t current = 0;
@@ -102,7 +107,7 @@ TEST_CASE("the demo measures a good and a faulted HVE-PA1 and writes both report
     const BenchFile bench = load_bench_file(out_dir + "/station-b2-board-0042.bench.json");
     const circuit::Design drawn = sim::draw_board(nominal, sim::parse_board_spec("sim://?seed=2611"));
     const circuit::Prediction truth = circuit::predict(circuit::build_netlist(drawn, circuit::bench_loading(bench)));
-    const store::SessionDetail d = archive->session_detail(1);
+    const store::SessionDetail d = archive->session_detail(2);
     const store::FitRecord* fit = nullptr;
     for (const auto& f : d.fits)
         if (f.kind == "response") fit = &f;
