@@ -23,9 +23,9 @@
 #include <nlohmann/json.hpp>
 
 #include "fit/circuit/design.h"
+#include "common/child_process.h"
 #include "reference/circuit_deck_support.h"
 
-extern char** environ;
 
 using namespace ampbench;
 
@@ -37,79 +37,6 @@ std::string slurp(const std::filesystem::path& p) {
     s << in.rdbuf();
     return s.str();
 }
-
-// One ampbench child process, stdout to a pipe (or a file), stderr to a file; SIGKILLed by the
-// destructor when a test left it running.
-class Child {
-public:
-    Child(const std::vector<std::string>& args, const std::string& err_path, const std::string& out_path = "") {
-        std::vector<std::string> a{AMPBENCH_EXE};
-        a.insert(a.end(), args.begin(), args.end());
-        std::vector<char*> argv;
-        for (auto& s : a) argv.push_back(s.data());
-        argv.push_back(nullptr);
-        int fds[2] = {-1, -1};
-        posix_spawn_file_actions_t actions;
-        posix_spawn_file_actions_init(&actions);
-        if (out_path.empty()) {
-            REQUIRE(::pipe(fds) == 0);
-            posix_spawn_file_actions_adddup2(&actions, fds[1], STDOUT_FILENO);
-            posix_spawn_file_actions_addclose(&actions, fds[0]);
-        } else {
-            posix_spawn_file_actions_addopen(&actions, STDOUT_FILENO, out_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-        }
-        posix_spawn_file_actions_addopen(&actions, STDERR_FILENO, err_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-        posix_spawn_file_actions_addopen(&actions, STDIN_FILENO, "/dev/null", O_RDONLY, 0);
-        const int rc = ::posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), environ);
-        posix_spawn_file_actions_destroy(&actions);
-        if (fds[1] >= 0) ::close(fds[1]);
-        out_fd_ = fds[0];
-        REQUIRE(rc == 0);
-    }
-    Child(const Child&) = delete;
-    Child& operator=(const Child&) = delete;
-    ~Child() {
-        if (pid_ > 0) {
-            ::kill(pid_, SIGKILL);
-            ::waitpid(pid_, nullptr, 0);
-        }
-        if (out_fd_ >= 0) ::close(out_fd_);
-    }
-
-    // The first stdout line, or "" after `timeout_s` (the sanitized build starts slowly).
-    std::string read_line(double timeout_s = 120.0) {
-        std::string line;
-        const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
-        while (std::chrono::steady_clock::now() < deadline) {
-            pollfd p{out_fd_, POLLIN, 0};
-            if (::poll(&p, 1, 200) <= 0) continue;
-            char c;
-            if (::read(out_fd_, &c, 1) != 1) break;
-            if (c == '\n') return line;
-            line += c;
-        }
-        return "";
-    }
-
-    // Waits for the exit (SIGTERM first when `terminate`); the exit status, −1 after timeout_s.
-    int wait(double timeout_s, bool terminate = false) {
-        if (terminate) ::kill(pid_, SIGTERM);
-        const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
-        while (std::chrono::steady_clock::now() < deadline) {
-            int status = 0;
-            if (::waitpid(pid_, &status, WNOHANG) == pid_) {
-                pid_ = -1;
-                return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-            }
-            std::this_thread::sleep_for(std::chrono::milliseconds(50));
-        }
-        return -1;
-    }
-
-private:
-    pid_t pid_ = -1;
-    int out_fd_ = -1;
-};
 
 struct SpiceTruth {
     double midband_gain_db = 0;
@@ -173,14 +100,10 @@ void check_seed(int seed) {
     // bench file (the same file at TCP addresses) describes what is really connected.
     // Virtual time runs 20× wall time: settling waits and captures shrink, the board's
     // physics do not.
-    Child server({"simulate", "--design", design, "--bench", sim_bench, "--seed", tag, "--reveal", reveal, "--time-scale", "20"},
-                 (dir / ("server-" + tag + ".err")).string());
-    std::istringstream ready(server.read_line());
-    std::string word;
-    ready >> word;
-    REQUIRE(word == "ready");
-    std::vector<int> ports;
-    for (int p; ready >> p;) ports.push_back(p);
+    testing::ChildProcess server(
+        testing::ampbench_argv({"simulate", "--design", design, "--bench", sim_bench, "--seed", tag, "--reveal", reveal, "--time-scale", "20"}),
+        {"", (dir / ("server-" + tag + ".err")).string()});
+    const std::vector<int> ports = server.ready_ports();
     REQUIRE(ports.size() == 4);
     const std::string bench = (dir / ("tcp-" + tag + ".bench.json")).string();
     std::ofstream(bench) << tcp_bench_text(ports);
@@ -188,9 +111,10 @@ void check_seed(int seed) {
     // A coarse plan (3 per decade, default limits a decade beyond each predicted corner);
     // the sweep's adaptive points locate the corners.
     const std::string out = (dir / ("sweep-" + tag + ".json")).string(), err = (dir / ("sweep-" + tag + ".err")).string();
-    Child sweep({"--db", (dir / ("archive-" + tag + ".sqlite")).string(), "sweep", "--bench", bench, "--design", design, "--board",
-                 "PA1-2611-09" + tag, "--yes", "--json", "--no-progress", "--per-decade", "3", "--tolerance-runs", "100"},
-                err, out);
+    testing::ChildProcess sweep(testing::ampbench_argv({"--db", (dir / ("archive-" + tag + ".sqlite")).string(), "sweep", "--bench", bench,
+                                                        "--design", design, "--board", "PA1-2611-09" + tag, "--yes", "--json",
+                                                        "--no-progress", "--per-decade", "3", "--tolerance-runs", "100"}),
+                                {out, err});
     const int code = sweep.wait(1500);
     INFO(slurp(err));
     REQUIRE(code == 0);

@@ -22,93 +22,22 @@
 #include "fit/circuit/design.h"
 #include "reference/circuit_deck_support.h"
 #include "sim_rig_support.h"
+#include "common/child_process.h"
 #include "sim_support.h"
 
-extern char** environ;
 
 using namespace ampbench;
 using namespace ampbench::sim::test;
 
 namespace {
 
-// One `ampbench simulate` child; SIGKILLed by the destructor if a test left it running.
-class ServerProcess {
-public:
-    ServerProcess(const std::vector<std::string>& extra_args) {
-        std::vector<std::string> args{AMPBENCH_EXE, "simulate",
-                                      "--design", std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/pa1.design.json",
-                                      "--listen", "127.0.0.1:0"};
-        args.insert(args.end(), extra_args.begin(), extra_args.end());
-        std::vector<char*> argv;
-        for (auto& a : args) argv.push_back(a.data());
-        argv.push_back(nullptr);
-        int fds[2];
-        REQUIRE(::pipe(fds) == 0);
-        posix_spawn_file_actions_t actions;
-        posix_spawn_file_actions_init(&actions);
-        posix_spawn_file_actions_adddup2(&actions, fds[1], STDOUT_FILENO);
-        posix_spawn_file_actions_addclose(&actions, fds[0]);
-        const int rc = ::posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), environ);
-        posix_spawn_file_actions_destroy(&actions);
-        ::close(fds[1]);
-        out_fd_ = fds[0];
-        REQUIRE(rc == 0);
-    }
-    ServerProcess(const ServerProcess&) = delete;
-    ServerProcess& operator=(const ServerProcess&) = delete;
-    ~ServerProcess() {
-        if (pid_ > 0) {
-            ::kill(pid_, SIGKILL);
-            ::waitpid(pid_, nullptr, 0);
-        }
-        if (out_fd_ >= 0) ::close(out_fd_);
-    }
-
-    // The first stdout line, or "" after `timeout_s` (the sanitized build starts slowly).
-    std::string read_line(double timeout_s = 120.0) {
-        std::string line;
-        const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
-        while (std::chrono::steady_clock::now() < deadline) {
-            pollfd p{out_fd_, POLLIN, 0};
-            if (::poll(&p, 1, 200) <= 0) continue;
-            char c;
-            if (::read(out_fd_, &c, 1) != 1) break;
-            if (c == '\n') return line;
-            line += c;
-        }
-        return "";
-    }
-
-    // The four ports of a `ready` line.
-    std::vector<int> ready_ports() {
-        std::istringstream in(read_line());
-        std::string word;
-        in >> word;
-        if (word != "ready") return {};
-        std::vector<int> ports;
-        for (int p; in >> p;) ports.push_back(p);
-        return ports;
-    }
-
-    // SIGTERM, then the exit status (−1 when it did not end within `timeout_s`).
-    int terminate(double timeout_s = 30.0) {
-        ::kill(pid_, SIGTERM);
-        const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
-        while (std::chrono::steady_clock::now() < deadline) {
-            int status = 0;
-            if (::waitpid(pid_, &status, WNOHANG) == pid_) {
-                pid_ = -1;
-                return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-            }
-            std::this_thread::sleep_for(std::chrono::milliseconds(20));
-        }
-        return -1;
-    }
-
-private:
-    pid_t pid_ = -1;
-    int out_fd_ = -1;
-};
+// One `ampbench simulate` of the sample design, listening on free ports; `extra` follows.
+std::vector<std::string> simulate_argv(const std::vector<std::string>& extra) {
+    std::vector<std::string> args{"simulate", "--design", std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/pa1.design.json",
+                                  "--listen", "127.0.0.1:0"};
+    args.insert(args.end(), extra.begin(), extra.end());
+    return ampbench::testing::ampbench_argv(args);
+}
 
 // The default probes and generator, with the instruments at the server's ports.
 BenchFile tcp_bench(const std::vector<int>& ports) {
@@ -164,7 +93,7 @@ std::vector<double> ngspice_gains(const circuit::Design& revealed, const std::ve
 TEST_CASE("through the TCP server the gain matches ngspice's AC gain of the revealed board", "[sim][net]") {
     const std::string reveal = write_temp_file("net-reveal.design.json", "");
     // Time runs 50× wall time: the two-second settling waits take 40 ms.
-    ServerProcess server({"--seed", "5", "--reveal", reveal, "--time-scale", "50"});
+    ampbench::testing::ChildProcess server(simulate_argv({"--seed", "5", "--reveal", reveal, "--time-scale", "50"}), {});
     const std::vector<int> ports = server.ready_ports();
     REQUIRE(ports.size() == 4);
     drivers::BenchInstruments inst = drivers::open_bench_instruments(tcp_bench(ports), {});
@@ -184,12 +113,12 @@ TEST_CASE("through the TCP server the gain matches ngspice's AC gain of the reve
     inst.generator->set_output(false);
     inst.supply->output_off();
     inst = {};
-    CHECK(server.terminate() == 0);
+    CHECK(server.wait(30, true) == 0);
 }
 
 TEST_CASE("two servers on port 0 run side by side and end cleanly on SIGTERM", "[sim][net]") {
-    ServerProcess a({"--seed", "1"});
-    ServerProcess b({"--seed", "2"});
+    ampbench::testing::ChildProcess a(simulate_argv({"--seed", "1"}), {});
+    ampbench::testing::ChildProcess b(simulate_argv({"--seed", "2"}), {});
     const std::vector<int> pa = a.ready_ports(), pb = b.ready_ports();
     REQUIRE(pa.size() == 4);
     REQUIRE(pb.size() == 4);
@@ -202,6 +131,6 @@ TEST_CASE("two servers on port 0 run side by side and end cleanly on SIGTERM", "
         CHECK(serial == (ports == &pa ? "SIM-GEN-1" : "SIM-GEN-2"));
         CHECK(inst.meter->identify().manufacturer == "ampbench");
     }
-    CHECK(a.terminate() == 0);
-    CHECK(b.terminate() == 0);
+    CHECK(a.wait(30, true) == 0);
+    CHECK(b.wait(30, true) == 0);
 }
