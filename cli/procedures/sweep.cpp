@@ -166,6 +166,7 @@ private:
     std::vector<store::InstrumentRecord> identify_all();
     std::vector<store::ProbeRecord> probe_records() const;
     void load_match(const std::string& scope_identity);
+    void wind_down(PowerSequence& power, store::SessionStatus status);
     void open_instruments();
     void configure_scope();
     Reading capture(double f_hz);
@@ -505,6 +506,16 @@ void Sweeper::load_match(const std::string& scope_identity) {
     }
 }
 
+// The way out after an error or Ctrl-C: powered down in reverse order, the session marked.
+void Sweeper::wind_down(PowerSequence& power, store::SessionStatus status) {
+    if (o_.progress) progress_ << "\n";
+    power.power_down();
+    try {
+        archive_.finish_session(session_id_, status);
+    } catch (const Error&) {
+    }
+}
+
 MatchOutcome Sweeper::run_match(const MatchOptions& m) {
     wall_start_ = std::chrono::steady_clock::now();
     matching_ = true;
@@ -566,15 +577,10 @@ MatchOutcome Sweeper::run_match(const MatchOptions& m) {
         archive_.add_fit(fr);
         size_t done = 0;
         measure_plan(plan, plan.size(), done);
-        if (m.progress) progress_ << "\n";
+        if (o_.progress) progress_ << "\n";
         power.power_down();
     } catch (...) {
-        if (m.progress) progress_ << "\n";
-        power.power_down();
-        try {
-            archive_.finish_session(session_id_, store::SessionStatus::aborted);
-        } catch (const Error&) {
-        }
+        wind_down(power, store::SessionStatus::aborted);
         throw;
     }
     archive_.finish_session(session_id_, store::SessionStatus::complete);
@@ -734,13 +740,8 @@ SweepOutcome Sweeper::run() {
         if (o_.progress) progress_ << "\n";
         power.power_down();
     } catch (...) {
-        if (o_.progress) progress_ << "\n";
-        power.power_down();
-        // The session stays resumable after an interruption; an error aborts it.
-        try {
-            archive_.finish_session(session_id_, store::SessionStatus::interrupted);
-        } catch (const Error&) {
-        }
+        // The session stays resumable.
+        wind_down(power, store::SessionStatus::interrupted);
         throw;
     }
     archive_.finish_session(session_id_, store::SessionStatus::complete);
