@@ -181,68 +181,6 @@ struct VirtualTray::Impl {
     }
 };
 
-namespace {
-
-// Buffers like the virtual bench's in-process transport but asks the tray for the bench
-// every time, so a device change needs no reconnection.
-class TrayTransport final : public drivers::Transport {
-public:
-    TrayTransport(std::function<VirtualBench&()> bench, std::string role)
-        : bench_(std::move(bench)), role_(std::move(role)) {}
-
-    void write(std::string_view bytes, drivers::Deadline) override {
-        if (closed_) throw ConnectionError(describe() + ": closed");
-        pending_.append(bytes);
-        size_t nl;
-        while ((nl = pending_.find('\n')) != std::string::npos) {
-            std::string line = pending_.substr(0, nl);
-            pending_.erase(0, nl + 1);
-            if (!line.empty() && line.back() == '\r') line.pop_back();
-            VirtualBench& b = bench_();
-            const Outcome o = b.execute(role_, line);
-            b.clock().sleep_s(o.busy_s);
-            if (o.has_reply) {
-                output_ += o.reply;
-                output_ += '\n';
-            }
-        }
-    }
-    std::string read_until(std::string_view terminator, drivers::Deadline deadline, size_t max_bytes) override {
-        const size_t at = output_.find(terminator);
-        if (at == std::string::npos) timeout(deadline);
-        const size_t n = at + terminator.size();
-        if (n > max_bytes) throw ConnectionError(describe() + ": reply longer than the limit");
-        std::string out = output_.substr(0, n);
-        output_.erase(0, n);
-        return out;
-    }
-    std::string read_exact(size_t n, drivers::Deadline deadline) override {
-        if (output_.size() < n) timeout(deadline);
-        std::string out = output_.substr(0, n);
-        output_.erase(0, n);
-        return out;
-    }
-    void clear() override {
-        output_.clear();
-        pending_.clear();
-    }
-    void close() override { closed_ = true; }
-    void reopen(drivers::Deadline) override { closed_ = false; }
-    std::string describe() const override { return "sim://tray/" + role_; }
-
-private:
-    [[noreturn]] void timeout(drivers::Deadline deadline) {
-        bench_().clock().sleep_s(drivers::ms_left(deadline) / 1000.0);
-        throw TimeoutError(describe() + ": no reply (the instrument answers only queries it knows)");
-    }
-
-    std::function<VirtualBench&()> bench_;
-    std::string role_;
-    std::string pending_, output_;
-    bool closed_ = false;
-};
-
-}  // namespace
 
 VirtualTray::VirtualTray(lot::JigDesign jig, const BenchFile& bench, TraySpec spec, Clock& clock)
     : impl_(std::make_unique<Impl>(std::move(jig), bench, spec, clock)) {}
@@ -264,7 +202,8 @@ const TraySpec& VirtualTray::spec() const { return impl_->spec; }
 
 drivers::VirtualTransportFactory VirtualTray::transport_factory() {
     return [this](const std::string& role, const drivers::InstrumentUri&) -> std::unique_ptr<drivers::Transport> {
-        return std::make_unique<TrayTransport>([this]() -> VirtualBench& { return *impl_->vbench; }, role);
+        // The tray is asked for its bench at every line, so a device change needs no reconnection.
+        return make_in_process_transport([this]() -> VirtualBench& { return *impl_->vbench; }, role, "sim://tray/" + role);
     };
 }
 

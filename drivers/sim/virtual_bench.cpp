@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <array>
 #include <cmath>
+#include <functional>
 #include <numbers>
 
 #include <fmt/format.h>
@@ -568,7 +569,8 @@ namespace {
 
 class InProcessTransport final : public drivers::Transport {
 public:
-    InProcessTransport(VirtualBench& bench, std::string role) : bench_(bench), role_(std::move(role)) {}
+    InProcessTransport(std::function<VirtualBench&()> bench, std::string role, std::string name)
+        : bench_(std::move(bench)), role_(std::move(role)), name_(std::move(name)) {}
 
     void write(std::string_view bytes, drivers::Deadline) override {
         if (closed_) throw ConnectionError(describe() + ": closed");
@@ -578,8 +580,9 @@ public:
             std::string line = pending_.substr(0, nl);
             pending_.erase(0, nl + 1);
             if (!line.empty() && line.back() == '\r') line.pop_back();
-            const Outcome o = bench_.execute(role_, line);
-            bench_.clock().sleep_s(o.busy_s);
+            VirtualBench& b = bench_();
+            const Outcome o = b.execute(role_, line);
+            b.clock().sleep_s(o.busy_s);
             if (o.has_reply) {
                 output_ += o.reply;
                 output_ += '\n';
@@ -610,17 +613,17 @@ public:
     }
     void close() override { closed_ = true; }
     void reopen(drivers::Deadline) override { closed_ = false; }
-    std::string describe() const override { return "sim://" + role_; }
+    std::string describe() const override { return name_; }
 
 private:
     [[noreturn]] std::string timeout(drivers::Deadline deadline) {
         // Nothing will ever arrive in-process; the wait still costs the instrument's timeout.
-        bench_.clock().sleep_s(drivers::ms_left(deadline) / 1000.0);
+        bench_().clock().sleep_s(drivers::ms_left(deadline) / 1000.0);
         throw TimeoutError(describe() + ": no reply (the instrument answers only queries it knows)");
     }
 
-    VirtualBench& bench_;
-    std::string role_;
+    std::function<VirtualBench&()> bench_;
+    std::string role_, name_;
     std::string pending_, output_;
     bool closed_ = false;
 };
@@ -634,8 +637,13 @@ double virtual_scope_gain_error(std::uint64_t seed, size_t channel, const SimLim
     return g;
 }
 
+std::unique_ptr<drivers::Transport> make_in_process_transport(std::function<VirtualBench&()> bench, const std::string& role,
+                                                              std::string name) {
+    return std::make_unique<InProcessTransport>(std::move(bench), role, std::move(name));
+}
+
 std::unique_ptr<drivers::Transport> make_in_process_transport(VirtualBench& bench, const std::string& role) {
-    return std::make_unique<InProcessTransport>(bench, role);
+    return make_in_process_transport([&bench]() -> VirtualBench& { return bench; }, role, "sim://" + role);
 }
 
 drivers::VirtualTransportFactory VirtualBench::transport_factory() {

@@ -4,6 +4,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <string>
 #include <string_view>
@@ -66,5 +67,9 @@ double virtual_scope_gain_error(std::uint64_t seed, size_t channel, const SimLim
 
 // An in-process transport for one role of a virtual bench.
 std::unique_ptr<drivers::Transport> make_in_process_transport(VirtualBench& bench, const std::string& role);
+// The same, asking `bench` for the bench at every line (a tray swaps benches under it); `name`
+// is what describe() says.
+std::unique_ptr<drivers::Transport> make_in_process_transport(std::function<VirtualBench&()> bench, const std::string& role,
+                                                              std::string name);
 
 }  // namespace ampbench::sim
