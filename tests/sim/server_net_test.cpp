@@ -50,22 +50,6 @@ BenchFile tcp_bench(const std::vector<int>& ports) {
     return bench;
 }
 
-void power_up(drivers::BenchInstruments& inst) {
-    inst.generator->set_output(false);
-    inst.supply->set_voltage(12.0);
-    inst.supply->set_current_limit(0.05);
-    inst.supply->output_on();
-    inst.generator->select_sine();
-    inst.generator->set_load("high-z");
-    for (const char* ch : {"1", "2"}) {
-        drivers::ScopeChannelSetup s;
-        s.channel = ch;
-        s.probe_ratio = 10;
-        s.range_vpp = 0.1;
-        inst.scope->configure_channel(s);
-    }
-}
-
 // |V(out)/V(in)| of the revealed design by ngspice `.ac` (its probes are parts of the design).
 std::vector<double> ngspice_gains(const circuit::Design& revealed, const std::vector<double>& freqs_hz) {
     std::string deck = testing::spice_circuit(revealed, {});
@@ -97,7 +81,7 @@ TEST_CASE("through the TCP server the gain matches ngspice's AC gain of the reve
     const std::vector<int> ports = server.ready_ports();
     REQUIRE(ports.size() == 4);
     drivers::BenchInstruments inst = drivers::open_bench_instruments(tcp_bench(ports), {});
-    power_up(inst);
+    power_up_bench(inst);
 
     const std::vector<double> freqs{1e3, 1e6};
     // Source: ngspice `.ac` on the board as the server says it simulated it.

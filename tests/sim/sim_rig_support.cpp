@@ -20,7 +20,9 @@ Rig::Rig(const std::string& sim_uri, double cap_scale) {
     inst = drivers::open_bench_instruments(bench_file, opt);
 }
 
-void Rig::power_up(double supply_v, double limit_a) {
+void Rig::power_up(double supply_v, double limit_a) { power_up_bench(inst, supply_v, limit_a); }
+
+void power_up_bench(drivers::BenchInstruments& inst, double supply_v, double limit_a) {
     inst.generator->set_output(false);
     inst.supply->set_voltage(supply_v);
     inst.supply->set_current_limit(limit_a);

@@ -20,6 +20,10 @@ struct Rig {
     void power_up(double supply_v = 12.0, double limit_a = 0.05);
 };
 
+// Generator off, supply on at supply_v with limit_a, generator sine into high-Z, scope channels
+// 1 and 2 (10× probes) on their smallest range.
+void power_up_bench(drivers::BenchInstruments& inst, double supply_v = 12.0, double limit_a = 0.05);
+
 // Sets the generator (phase-continuous) and returns at once.
 void set_stimulus(drivers::BenchInstruments& inst, double freq_hz, double vpp);
 // One capture of `periods` periods; returns V(out)/V(in) from three-parameter sine fits.
