@@ -148,3 +148,26 @@ TEST_CASE("the safety notice is shown and confirmation asked unless --yes", "[po
     CHECK_NOTHROW(procedures::confirm_safety(quiet, nothing, 0.02, true));
     CHECK(quiet.str().find("[y/N]") == std::string::npos);
 }
+
+TEST_CASE("a channel-match run drives the generator alone and switches it off on every way out", "[power][match]") {
+    // The match run's sequence: no supply (nullptr), so the supply is never addressed.
+    for (const bool interrupted : {false, true}) {
+        Rig rig;
+        {
+            PowerSequence power(rig.gen.get(), nullptr, rig.clock, PowerPlan{});
+            power.power_up();
+            power.generator_on();
+            // Interrupted: leaving the scope (the destructor) is the way out.
+            if (!interrupted) power.power_down();
+        }
+        const Events expected{"generator off", "generator on", "generator off"};
+        CHECK(rig.state->output_events() == expected);
+        for (const std::string& line : rig.state->log) CHECK(line.rfind("supply:", 0) != 0);
+    }
+    std::ostringstream out;
+    std::istringstream no("n\n");
+    CHECK_THROWS_AS(procedures::confirm_or_stop(out, no, procedures::match_notice(1.0), "Both probes on one node?", "not confirmed", false),
+                    SafetyStop);
+    for (const char* words : {"same node", "No supply is switched on", "ground leads", "local electrical codes"})
+        CHECK(out.str().find(words) != std::string::npos);
+}
