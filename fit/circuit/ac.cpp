@@ -80,6 +80,7 @@ void stamp_transistor_small_signal(const Transistor& t, const BjtEval& ev, int n
 }
 
 struct AcAnalysis::Impl {
+    AcMethod method = AcMethod::fast;
     int n = 0;
     int in = 0, out = 0, stimulus = 0;
     // The reduced system the fast paths work on: the full MNA without the nodes a grounded
@@ -107,6 +108,8 @@ struct AcAnalysis::Impl {
     Eigen::EigenSolver<Eigen::MatrixXd> eig;
     Eigen::VectorXcd lambda, c_in, c_out, c_stim, c_zout, denom;
     Eigen::VectorXd w_drive, w_out;
+    // The direct method's buffers: row-major nr×nr G + jωC and its right-hand side.
+    std::vector<Complex> lu_work, lu_rhs;
 
     void build(const Netlist& nl, const OperatingPoint& op) {
         n = nl.unknown_count();
@@ -144,7 +147,54 @@ struct AcAnalysis::Impl {
                 c_rows[static_cast<size_t>(i) * n + j] = c(i, j);
             }
         eliminate_grounded_sources(nl);
+        if (method == AcMethod::direct) {
+            fast = modal = false;
+            lu_work.resize(static_cast<size_t>(nr) * nr);
+            lu_rhs.resize(static_cast<size_t>(nr));
+            return;
+        }
         reduce();
+    }
+
+    // V(out)/V(in) by Gaussian elimination with partial pivoting on the reduced G + jωC.
+    Complex direct_gain(double freq_hz) {
+        const double w = 2 * std::numbers::pi * freq_hz;
+        const auto un = static_cast<size_t>(nr);
+        Complex* a = lu_work.data();
+        Complex* x = lu_rhs.data();
+        for (int i = 0; i < nr; ++i) {
+            for (int j = 0; j < nr; ++j) a[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = Complex(g_r(i, j), w * c_r(i, j));
+            x[i] = b_r[i];
+        }
+        for (int k = 0; k < nr; ++k) {
+            const size_t kk = static_cast<size_t>(k);
+            size_t pivot = kk;
+            double best = std::norm(a[kk * un + kk]);
+            for (size_t i = kk + 1; i < un; ++i)
+                if (std::norm(a[i * un + kk]) > best) best = std::norm(a[i * un + kk]), pivot = i;
+            if (pivot != kk) {
+                for (size_t j = kk; j < un; ++j) std::swap(a[kk * un + j], a[pivot * un + j]);
+                std::swap(x[kk], x[pivot]);
+            }
+            if (!(best > 0)) continue;
+            const Complex inv = reciprocal(a[kk * un + kk]);
+            for (size_t i = kk + 1; i < un; ++i) {
+                const Complex aik = a[i * un + kk];
+                if (aik == Complex(0)) continue;  // MNA rows are sparse: most multipliers are 0
+                const Complex f = aik * inv;
+                for (size_t j = kk + 1; j < un; ++j) a[i * un + j] -= f * a[kk * un + j];
+                x[i] -= f * x[kk];
+            }
+        }
+        for (int i = nr - 1; i >= 0; --i) {
+            const size_t ii = static_cast<size_t>(i);
+            Complex acc = x[ii];
+            for (size_t j = ii + 1; j < un; ++j) acc -= a[ii * un + j] * x[j];
+            x[ii] = quotient(acc, a[ii * un + ii]);
+        }
+        const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
+        const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
+        return quotient(v_out, v_in);
     }
 
     void eliminate_grounded_sources(const Netlist& nl) {
@@ -301,8 +351,9 @@ struct AcAnalysis::Impl {
     }
 };
 
-AcAnalysis::AcAnalysis(const Netlist& netlist, const OperatingPoint& op)
+AcAnalysis::AcAnalysis(const Netlist& netlist, const OperatingPoint& op, AcMethod method)
     : impl_(std::make_unique<Impl>()) {
+    impl_->method = method;
     impl_->build(netlist, op);
 }
 AcAnalysis::AcAnalysis(AcAnalysis&&) noexcept = default;
@@ -341,6 +392,7 @@ AcPoint AcAnalysis::point(double freq_hz) {
 
 std::complex<double> AcAnalysis::gain(double freq_hz) {
     Impl& d = *impl_;
+    if (d.method == AcMethod::direct) return d.direct_gain(freq_hz);
     if (!d.modal) return point(freq_hz).gain;
     // Both probes in one pass over the modes: 1/(1 + jωλ) = (a − jb)/(a² + b²) with
     // a = 1 − ω·Im λ, b = ω·Re λ, written out in real arithmetic.

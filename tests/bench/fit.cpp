@@ -1,6 +1,8 @@
 // Benchmark: a 200-point rational fit (rational:2/1,2) by ampbench's engine against
 // scipy.optimize.least_squares on the same data from the same start, timed in the same run;
-// and a circuit-model fit of the HVE-PA1 sample design (Q1.beta and C3 free, tolerance priors).
+// and a circuit-model fit of the HVE-PA1 sample design (Q1.beta and C3 free, tolerance priors)
+// against scipy's least_squares on a numpy port of the same model (tests/bench/circuit_fit_reference.py).
+// Exits non-zero when the fitted parameters disagree, never on time.
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -21,6 +23,7 @@
 #include "fit/extract/beta.h"
 #include "fit/response/circuit_fit.h"
 #include "fit/response/response_fit.h"
+#include "fit/response/circuit_scipy_support.h"
 
 using namespace ampbench;
 using namespace ampbench::fit;
@@ -86,7 +89,6 @@ int main() {
     }
     std::ifstream in(dir / "result.json");
     const nlohmann::json scipy = nlohmann::json::parse(in);
-    std::filesystem::remove_all(dir);
     const double scipy_s = scipy.at("fit_seconds").get<double>();
     const std::vector<double> theirs = scipy.at("params").get<std::vector<double>>();
     double worst_rel = 0;
@@ -102,8 +104,23 @@ int main() {
     std::cout << fmt::format("  largest relative parameter difference {:.2e}\n", worst_rel);
 
     // Circuit-model fit: 200 points, 1 Hz–10 MHz, of the PA1 board with parts off nominal
-    // (BF 330 instead of 400, C3 −12 %, C1 −7 %, R1 +0.7 %), evaluated by fit/circuit itself.
-    const circuit::Design pa1 = circuit::load_design(std::string(AMPBENCH_SOURCE_DIR) + "/sample_sessions/pa1.design.json");
+    // (BF 330 instead of 400, C3 −12 %, C1 −7 %, R1 +0.7 %), evaluated by fit/circuit itself, and
+    // DC readings of its base, emitter and collector.
+    // The board on a beta jig: a known 10 kΩ 1 % resistor between the generator and the board
+    // input, the scope's 'in' probe on the generator side (the set-up the beta verdict advises),
+    // so that every fitted parameter is determined and both engines have one minimum to find.
+    nlohmann::json jig;
+    {
+        std::string path = AMPBENCH_SOURCE_DIR;
+        path += "/sample_sessions/pa1.design.json";
+        std::ifstream design_in(path);
+        jig = nlohmann::json::parse(design_in);
+        jig["name"] = "HVE-PA1 on a beta jig";
+        jig["parts"].push_back({{"ref", "RS"}, {"kind", "resistor"}, {"nodes", {"gen", "in"}}, {"value", "10k"}, {"tol", "1%"}});
+        jig["stimulus"]["node"] = "gen";
+        jig["probes"]["in"] = "gen";
+    }
+    const circuit::Design pa1 = circuit::parse_design(jig.dump(), "HVE-PA1 beta jig");
     circuit::BenchLoading loading;
     loading.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     CircuitFitOptions copt;
@@ -122,6 +139,13 @@ int main() {
         truth_model.set(p);
         cdata.has_sd = true;
         Random noise(7);
+        // The meter's readings of the bias nodes, with the sweep's uncertainty (0.05 % of reading
+        // over √3 plus 0.1 mV), so beta is identifiable from the DC rows.
+        for (const char* node : {"b", "e", "c"}) {
+            const double v = truth_model.operating_point().node_volts[static_cast<std::size_t>(truth_model.netlist().node_index(node))];
+            const double u = std::abs(v) * 0.0005 / std::sqrt(3.0) + 1e-4;
+            copt.dc_readings.push_back({node, v + noise.normal(0, u), u});
+        }
         for (int i = 0; i < 200; ++i) {
             const double f = std::pow(1e7, i / 199.0);
             const std::complex<double> h = truth_model.gain(f);
@@ -129,20 +153,57 @@ int main() {
                                     wrap_deg(std::arg(h) * 180 / M_PI + noise.normal(0, 0.3)), 0.05, 0.3});
         }
     }
-    const int circuit_repeats = 5;
-    CircuitFit cfit;
+    const int circuit_repeats = 20;
+    CircuitFit cfit, clm;
     const auto t2 = std::chrono::steady_clock::now();
     for (int r = 0; r < circuit_repeats; ++r) cfit = fit_circuit(pa1, loading, cdata, copt);
     const double circuit_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t2).count() / circuit_repeats;
+    CircuitFitOptions lm_opt = copt;
+    lm_opt.derived = false;
+    const auto t2b = std::chrono::steady_clock::now();
+    for (int r = 0; r < circuit_repeats; ++r) clm = fit_circuit(pa1, loading, cdata, lm_opt);
+    const double circuit_lm_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t2b).count() / circuit_repeats;
     const auto t3 = std::chrono::steady_clock::now();
     const extract::EffectiveBeta beta = extract::effective_beta(cfit, pa1, loading);
     const double beta_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t3).count();
-    std::cout << fmt::format("200-point circuit-model fit (HVE-PA1, free Q1.beta and C3, {} tolerance priors)\n",
+
+    // The same problem by scipy.optimize.least_squares on a numpy port of the model.
+    const nlohmann::json cproblem = testing::circuit_scipy_problem(pa1, loading, cdata, copt, 3);
+    const nlohmann::json cscipy = testing::run_circuit_scipy(cproblem, dir);
+    std::filesystem::remove_all(dir);
+    if (cscipy.is_null() || cscipy.is_discarded()) {
+        std::cerr << "bench_fit: the circuit scipy script failed\n";
+        return 1;
+    }
+    const double cscipy_s = cscipy.at("fit_seconds").get<double>();
+    const std::vector<double> ctheirs = cscipy.at("params").get<std::vector<double>>();
+    double circuit_worst = 0;
+    std::string circuit_worst_name;
+    for (std::size_t j = 0; j < ctheirs.size(); ++j) {
+        const double rel = std::abs(cfit.report.params[j].value - ctheirs[j]) / std::abs(ctheirs[j]);
+        if (rel > circuit_worst) circuit_worst = rel, circuit_worst_name = cfit.report.params[j].name;
+    }
+    std::cout << fmt::format("200-point circuit-model fit (HVE-PA1 on a 10 kΩ beta jig, free Q1.beta and C3, {} tolerance priors, 3 DC readings)\n",
                              cfit.parameters.size() - 2);
-    std::cout << fmt::format("  ampbench circuit fit      {:10.3f} ms  ({} evaluations, {})\n", circuit_s * 1e3,
-                             cfit.report.evaluations, to_string(cfit.report.status));
+    std::cout << fmt::format("  ampbench LM only          {:10.3f} ms  ({} evaluations, {})\n", circuit_lm_s * 1e3,
+                             clm.report.evaluations, to_string(clm.report.status));
+    std::cout << fmt::format("  ampbench full fit report  {:10.3f} ms  (with derived quantities and intervals)\n",
+                             circuit_s * 1e3);
     std::cout << fmt::format("  effective beta            {:10.3f} ms  ({})\n", beta_s * 1e3, beta.brief());
-    std::cout << "  no scipy ratio: scipy cannot evaluate this model (it needs the DC Newton solve and the complex\n"
-                 "  MNA of fit/circuit, i.e. a second circuit simulator in Python), so there is no same-problem baseline\n";
+    std::cout << fmt::format("  scipy least_squares (lm)  {:10.3f} ms  ({} evaluations, numpy port of the model)\n",
+                             cscipy_s * 1e3, cscipy.at("nfev").get<int>());
+    std::cout << fmt::format("  ratio scipy / ampbench LM   {:8.1f}x\n", cscipy_s / circuit_lm_s);
+    std::cout << fmt::format("  ratio scipy / full report   {:8.1f}x\n", cscipy_s / circuit_s);
+    std::cout << fmt::format("  largest relative parameter difference {:.2e} ({})\n", circuit_worst, circuit_worst_name);
+    std::cout << fmt::format("  sum of squares: ampbench {:.10g}, scipy {:.10g}\n", cfit.report.rss, cscipy.at("cost").get<double>());
+    if (std::getenv("BENCH_FIT_DUMP")) {
+        nlohmann::json dump = cproblem;
+        dump["ampbench_params"] = cfit.report.values();
+        std::ofstream(std::getenv("BENCH_FIT_DUMP")) << dump.dump();
+    }
+    if (!(circuit_worst <= 1e-5) || !(worst_rel <= 1e-5)) {
+        std::cerr << "bench_fit: ampbench and scipy disagree on the fitted parameters\n";
+        return 1;
+    }
     return 0;
 }
