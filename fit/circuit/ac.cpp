@@ -108,8 +108,11 @@ struct AcAnalysis::Impl {
     Eigen::EigenSolver<Eigen::MatrixXd> eig;
     Eigen::VectorXcd lambda, c_in, c_out, c_stim, c_zout, denom;
     Eigen::VectorXd w_drive, w_out;
-    // The direct method's buffers: row-major nr×nr G + jωC and its right-hand side.
+    // The direct method's buffers: row-major nr×nr G + jωC and its right-hand side, and the
+    // elimination's structure without row exchanges: for pivot k, the rows below it and the
+    // columns right of it that hold a nonzero once the earlier pivots' fill is in.
     std::vector<Complex> lu_work, lu_rhs;
+    std::vector<std::vector<int>> below, right;
 
     void build(const Netlist& nl, const OperatingPoint& op) {
         n = nl.unknown_count();
@@ -151,50 +154,117 @@ struct AcAnalysis::Impl {
             fast = modal = false;
             lu_work.resize(static_cast<size_t>(nr) * nr);
             lu_rhs.resize(static_cast<size_t>(nr));
+            symbolic();
             return;
         }
         reduce();
     }
 
-    // V(out)/V(in) by Gaussian elimination with partial pivoting on the reduced G + jωC.
+    // V(out)/V(in) from the reduced G + jωC. First Gaussian elimination in the natural order
+    // without row exchanges, skipping the zeros of the sparse nodal matrix; a pivot smaller than
+    // 1e-3 of its column's largest entry (no nodal matrix of this engine's circuits has shown
+    // one, but an inductor's branch row would) sends the frequency to partial pivoting.
     Complex direct_gain(double freq_hz) {
         const double w = 2 * std::numbers::pi * freq_hz;
+        if (Complex r; eliminate(w, false, &r)) return r;
+        Complex r;
+        eliminate(w, true, &r);
+        return r;
+    }
+
+    void symbolic() {
+        const auto un = static_cast<size_t>(nr);
+        std::vector<char> nz(un * un);
+        for (int i = 0; i < nr; ++i)
+            for (int j = 0; j < nr; ++j) nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = g_r(i, j) != 0 || c_r(i, j) != 0;
+        below.assign(un, {});
+        right.assign(un, {});
+        for (size_t k = 0; k < un; ++k) {
+            for (size_t i = k + 1; i < un; ++i) {
+                if (nz[i * un + k]) below[k].push_back(static_cast<int>(i));
+                if (nz[k * un + i]) right[k].push_back(static_cast<int>(i));
+            }
+            for (const int i : below[k])
+                for (const int j : right[k]) nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = 1;
+        }
+    }
+
+    // Without row exchanges, over the structural nonzeros only.
+    bool eliminate_fixed(Complex* a, Complex* x, size_t un) const {
+        for (size_t k = 0; k < un; ++k) {
+            const Complex pivot = a[k * un + k];
+            double largest = std::norm(pivot);
+            for (const int i : below[k]) largest = std::max(largest, std::norm(a[static_cast<size_t>(i) * un + k]));
+            if (!(std::norm(pivot) > 1e-6 * largest)) return false;
+            const Complex inv = reciprocal(pivot);
+            for (const int ib : below[k]) {
+                const auto i = static_cast<size_t>(ib);
+                const Complex f = a[i * un + k] * inv;
+                for (const int j : right[k]) a[i * un + static_cast<size_t>(j)] -= f * a[k * un + static_cast<size_t>(j)];
+                x[i] -= f * x[k];
+            }
+        }
+        for (size_t i = un; i-- > 0;) {
+            Complex acc = x[i];
+            for (const int j : right[i]) acc -= a[i * un + static_cast<size_t>(j)] * x[j];
+            x[i] = quotient(acc, a[i * un + i]);
+        }
+        return true;
+    }
+
+    bool eliminate(double w, bool pivoting, Complex* gain_out) {
         const auto un = static_cast<size_t>(nr);
         Complex* a = lu_work.data();
         Complex* x = lu_rhs.data();
-        for (int i = 0; i < nr; ++i) {
-            for (int j = 0; j < nr; ++j) a[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = Complex(g_r(i, j), w * c_r(i, j));
-            x[i] = b_r[i];
-        }
-        for (int k = 0; k < nr; ++k) {
-            const size_t kk = static_cast<size_t>(k);
-            size_t pivot = kk;
-            double best = std::norm(a[kk * un + kk]);
-            for (size_t i = kk + 1; i < un; ++i)
-                if (std::norm(a[i * un + kk]) > best) best = std::norm(a[i * un + kk]), pivot = i;
-            if (pivot != kk) {
-                for (size_t j = kk; j < un; ++j) std::swap(a[kk * un + j], a[pivot * un + j]);
-                std::swap(x[kk], x[pivot]);
+        for (size_t i = 0; i < un; ++i) {
+            for (size_t j = 0; j < un; ++j) {
+                const auto ii = static_cast<Eigen::Index>(i), jj = static_cast<Eigen::Index>(j);
+                a[i * un + j] = Complex(g_r(ii, jj), w * c_r(ii, jj));
             }
-            if (!(best > 0)) continue;
-            const Complex inv = reciprocal(a[kk * un + kk]);
-            for (size_t i = kk + 1; i < un; ++i) {
-                const Complex aik = a[i * un + kk];
-                if (aik == Complex(0)) continue;  // MNA rows are sparse: most multipliers are 0
+            x[i] = b_r[static_cast<Eigen::Index>(i)];
+        }
+        if (!pivoting) {
+            if (!eliminate_fixed(a, x, un)) return false;
+            const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
+            const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
+            *gain_out = quotient(v_out, v_in);
+            return true;
+        }
+        for (size_t k = 0; k < un; ++k) {
+            size_t pivot = k;
+            double best = std::norm(a[k * un + k]), largest = best;
+            for (size_t i = k + 1; i < un; ++i) {
+                const double v = std::norm(a[i * un + k]);
+                largest = std::max(largest, v);
+                if (v > best) best = v, pivot = i;
+            }
+            if (pivot != k) {
+                for (size_t j = k; j < un; ++j) std::swap(a[k * un + j], a[pivot * un + j]);
+                std::swap(x[k], x[pivot]);
+            }
+            if (!(largest > 0)) continue;
+            const Complex inv = reciprocal(a[k * un + k]);
+            for (size_t i = k + 1; i < un; ++i) {
+                const Complex aik = a[i * un + k];
+                if (aik == Complex(0)) continue;  // nodal rows are sparse: most multipliers are 0
                 const Complex f = aik * inv;
-                for (size_t j = kk + 1; j < un; ++j) a[i * un + j] -= f * a[kk * un + j];
-                x[i] -= f * x[kk];
+                for (size_t j = k + 1; j < un; ++j) {
+                    const Complex akj = a[k * un + j];
+                    if (akj != Complex(0)) a[i * un + j] -= f * akj;
+                }
+                x[i] -= f * x[k];
             }
         }
-        for (int i = nr - 1; i >= 0; --i) {
-            const size_t ii = static_cast<size_t>(i);
-            Complex acc = x[ii];
-            for (size_t j = ii + 1; j < un; ++j) acc -= a[ii * un + j] * x[j];
-            x[ii] = quotient(acc, a[ii * un + ii]);
+        for (size_t i = un; i-- > 0;) {
+            Complex acc = x[i];
+            for (size_t j = i + 1; j < un; ++j)
+                if (a[i * un + j] != Complex(0)) acc -= a[i * un + j] * x[j];
+            x[i] = quotient(acc, a[i * un + i]);
         }
         const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
         const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
-        return quotient(v_out, v_in);
+        *gain_out = quotient(v_out, v_in);
+        return true;
     }
 
     void eliminate_grounded_sources(const Netlist& nl) {

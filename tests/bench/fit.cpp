@@ -106,21 +106,8 @@ int main() {
     // Circuit-model fit: 200 points, 1 Hz–10 MHz, of the PA1 board with parts off nominal
     // (BF 330 instead of 400, C3 −12 %, C1 −7 %, R1 +0.7 %), evaluated by fit/circuit itself, and
     // DC readings of its base, emitter and collector.
-    // The board on a beta jig: a known 10 kΩ 1 % resistor between the generator and the board
-    // input, the scope's 'in' probe on the generator side (the set-up the beta verdict advises),
-    // so that every fitted parameter is determined and both engines have one minimum to find.
-    nlohmann::json jig;
-    {
-        std::string path = AMPBENCH_SOURCE_DIR;
-        path += "/sample_sessions/pa1.design.json";
-        std::ifstream design_in(path);
-        jig = nlohmann::json::parse(design_in);
-        jig["name"] = "HVE-PA1 on a beta jig";
-        jig["parts"].push_back({{"ref", "RS"}, {"kind", "resistor"}, {"nodes", {"gen", "in"}}, {"value", "10k"}, {"tol", "1%"}});
-        jig["stimulus"]["node"] = "gen";
-        jig["probes"]["in"] = "gen";
-    }
-    const circuit::Design pa1 = circuit::parse_design(jig.dump(), "HVE-PA1 beta jig");
+    // The board on a beta jig (10 kΩ in series, 'in' probed on the generator side).
+    const circuit::Design pa1 = testing::pa1_on_beta_jig();
     circuit::BenchLoading loading;
     loading.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     CircuitFitOptions copt;

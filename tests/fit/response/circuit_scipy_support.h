@@ -18,6 +18,21 @@
 
 namespace ampbench::testing {
 
+// The HVE-PA1 sample board on a beta jig: a known 10 kΩ 1 % resistor between the generator and
+// the board input, the scope's 'in' probe on the generator side (the set-up the beta verdict
+// advises), so every fitted parameter is determined and a fit has one clear minimum.
+inline circuit::Design pa1_on_beta_jig() {
+    std::string path = AMPBENCH_SOURCE_DIR;  // two steps: GCC 12's false -Warray-bounds
+    path += "/sample_sessions/pa1.design.json";
+    std::ifstream in(path);
+    nlohmann::json jig = nlohmann::json::parse(in);
+    jig["name"] = "HVE-PA1 on a beta jig";
+    jig["parts"].push_back({{"ref", "RS"}, {"kind", "resistor"}, {"nodes", {"gen", "in"}}, {"value", "10k"}, {"tol", "1%"}});
+    jig["stimulus"]["node"] = "gen";
+    jig["probes"]["in"] = "gen";
+    return circuit::parse_design(jig.dump(), "HVE-PA1 beta jig");
+}
+
 inline nlohmann::json circuit_scipy_problem(const circuit::Design& design, const circuit::BenchLoading& bench,
                                             const fit::GainData& data, const fit::CircuitFitOptions& options,
                                             int repeats) {

@@ -1,5 +1,5 @@
-// Circuit-model fit against scipy: the same problem (HVE-PA1, tolerance priors, optional DC
-// readings) fitted by scipy.optimize.least_squares on the numpy port of the model in
+// Circuit-model fit against scipy: the same problem (HVE-PA1 on a beta jig, tolerance priors,
+// optional DC readings) fitted by scipy.optimize.least_squares on the numpy port of the model in
 // tests/bench/circuit_fit_reference.py, run with /usr/bin/python3. The fitted parameters must
 // agree within 1e-5 relative.
 #include <catch2/catch.hpp>
@@ -18,13 +18,6 @@
 using namespace ampbench;
 
 namespace {
-
-circuit::Design pa1_design() {
-    // Built in two steps: GCC 12 warns falsely (-Warray-bounds) on string(literal) + literal at -O2.
-    std::string path = AMPBENCH_SOURCE_DIR;
-    path += "/sample_sessions/pa1.design.json";
-    return circuit::load_design(path);
-}
 
 // The model's own response with parts off nominal, 0.05 dB / 0.3° noise, and its DC node
 // voltages (with 2 mV of meter noise) when `dc` is set.
@@ -58,7 +51,7 @@ fit::GainData off_nominal_response(const circuit::Design& d, const circuit::Benc
 }
 
 void check_against_scipy(const fit::CircuitFitOptions& opt, const fit::GainData& g, const std::string& tag) {
-    const circuit::Design d = pa1_design();
+    const circuit::Design d = testing::pa1_on_beta_jig();
     circuit::BenchLoading bench;
     bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     const fit::CircuitFit ours = fit::fit_circuit(d, bench, g, opt);
@@ -85,7 +78,7 @@ void check_against_scipy(const fit::CircuitFitOptions& opt, const fit::GainData&
 }  // namespace
 
 TEST_CASE("circuit fit agrees with scipy's least_squares on the same model", "[fit][circuit_fit][scipy]") {
-    const circuit::Design d = pa1_design();
+    const circuit::Design d = testing::pa1_on_beta_jig();
     circuit::BenchLoading bench;
     bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     fit::CircuitFitOptions opt;
@@ -94,7 +87,7 @@ TEST_CASE("circuit fit agrees with scipy's least_squares on the same model", "[f
 }
 
 TEST_CASE("circuit fit with DC readings agrees with scipy's least_squares", "[fit][circuit_fit][scipy]") {
-    const circuit::Design d = pa1_design();
+    const circuit::Design d = testing::pa1_on_beta_jig();
     circuit::BenchLoading bench;
     bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     fit::CircuitFitOptions opt;
