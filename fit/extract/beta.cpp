@@ -73,7 +73,7 @@ EffectiveBeta effective_beta(const fit::CircuitFit& fit, const circuit::Design& 
         "To identify it: put a known series resistance (1 % or better, about the board's input resistance{}) "
         "between the generator and the board input and probe the generator side with the scope's 'in' channel, "
         "so the input divider depends on r_pi; or add DC readings of {}'s base and emitter from the meter, which fix "
-        "the base current through the bias network",
+        "the base current through the bias network when its resistors are known closely (0.1 % parts or measured values)",
         "{}", out.transistor);
     out.verdict = kBetaNotIdentifiable;
     if (p.size() != model.parameters().size() || fit.report.status == fit::FitStatus::diverged) {

@@ -103,43 +103,15 @@ int main() {
     std::cout << fmt::format("  ratio scipy / full report   {:8.1f}x\n", scipy_s / ours_s);
     std::cout << fmt::format("  largest relative parameter difference {:.2e}\n", worst_rel);
 
-    // Circuit-model fit: 200 points, 1 Hz–10 MHz, of the PA1 board with parts off nominal
-    // (BF 330 instead of 400, C3 −12 %, C1 −7 %, R1 +0.7 %), evaluated by fit/circuit itself, and
-    // DC readings of its base, emitter and collector.
-    // The board on a beta jig (10 kΩ in series, 'in' probed on the generator side).
+    // Circuit-model fit: 200 points, 1 Hz–10 MHz, of the PA1 board on a beta jig (10 kΩ in series,
+    // 'in' probed on the generator side) with parts off nominal, evaluated by fit/circuit itself,
+    // and DC readings of its base, emitter and collector.
     const circuit::Design pa1 = testing::pa1_on_beta_jig();
     circuit::BenchLoading loading;
     loading.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     CircuitFitOptions copt;
     copt.free = {"Q1.beta", "C3"};
-    GainData cdata;
-    {
-        CircuitModel truth_model(pa1, loading, copt.free);
-        std::vector<double> p = truth_model.nominal();
-        for (std::size_t j = 0; j < p.size(); ++j) {
-            const std::string& name = truth_model.parameters()[j].name;
-            if (name == "Q1.beta") p[j] = 330;
-            if (name == "C3") p[j] *= 0.88;
-            if (name == "C1") p[j] *= 0.93;
-            if (name == "R1") p[j] *= 1.007;
-        }
-        truth_model.set(p);
-        cdata.has_sd = true;
-        Random noise(7);
-        // The meter's readings of the bias nodes, with the sweep's uncertainty (0.05 % of reading
-        // over √3 plus 0.1 mV), so beta is identifiable from the DC rows.
-        for (const char* node : {"b", "e", "c"}) {
-            const double v = truth_model.operating_point().node_volts[static_cast<std::size_t>(truth_model.netlist().node_index(node))];
-            const double u = std::abs(v) * 0.0005 / std::sqrt(3.0) + 1e-4;
-            copt.dc_readings.push_back({node, v + noise.normal(0, u), u});
-        }
-        for (int i = 0; i < 200; ++i) {
-            const double f = std::pow(1e7, i / 199.0);
-            const std::complex<double> h = truth_model.gain(f);
-            cdata.points.push_back({f, 20 * std::log10(std::abs(h)) + noise.normal(0, 0.05),
-                                    wrap_deg(std::arg(h) * 180 / M_PI + noise.normal(0, 0.3)), 0.05, 0.3});
-        }
-    }
+    const GainData cdata = testing::off_nominal_response(pa1, loading, 200, 7, &copt.dc_readings);
     const int circuit_repeats = 20;
     CircuitFit cfit, clm;
     const auto t2 = std::chrono::steady_clock::now();

@@ -130,6 +130,13 @@ Simulated simulate(double series_ohms, const circuit::BenchLoading& bench, const
     return s;
 }
 
+// The bench file of scope_bench(): a 50 Ω generator and two 10 MΩ ‖ 12 pF probes.
+constexpr const char* kScopeBenchText = R"({ "format": "ampbench-bench/1", "mains_hz": 50,
+  "generator": { "uri": "sim://?seed=1", "profile": "scpi-generic", "output_ohms": "50" },
+  "scope": { "uri": "sim://?seed=1", "profile": "scpi-generic", "channels": {
+     "1": { "probe": "in", "ratio": 10, "ohms": "10M", "farads": "12p" },
+     "2": { "probe": "out", "ratio": 10, "ohms": "10M", "farads": "12p" } } } })";
+
 circuit::BenchLoading scope_bench() {
     circuit::BenchLoading b;
     b.generator_ohms = 50;
@@ -187,11 +194,7 @@ TEST_CASE("ampbench fit --model circuit --json reports beta_eff and stores nothi
     const auto design_path = dir / "jig.design.json";
     std::ofstream(design_path) << board_json(kNominal, 400, rs);
     const auto bench_path = dir / "jig.bench.json";
-    std::ofstream(bench_path) << R"({ "format": "ampbench-bench/1", "mains_hz": 50,
-  "generator": { "uri": "sim://?seed=1", "profile": "scpi-generic", "output_ohms": "50" },
-  "scope": { "uri": "sim://?seed=1", "profile": "scpi-generic", "channels": {
-     "1": { "probe": "in", "ratio": 10, "ohms": "10M", "farads": "12p" },
-     "2": { "probe": "out", "ratio": 10, "ohms": "10M", "farads": "12p" } } } })";
+    std::ofstream(bench_path) << kScopeBenchText;
     const auto csv = dir / "board.csv";
     {
         std::ofstream c(csv);
@@ -290,11 +293,7 @@ TEST_CASE("DC readings of base, emitter and collector identify beta on a 50 ohm 
         nlohmann::json dc = nlohmann::json::array();
         for (const fit::DcReading& r : opt.dc_readings)
             dc.push_back({{"channel", "1"}, {"node", r.node}, {"volts", r.volts}, {"u_v", r.sd_volts}});
-        const std::string bench_text = R"({ "format": "ampbench-bench/1", "mains_hz": 50,
-  "generator": { "uri": "sim://?seed=1", "profile": "scpi-generic", "output_ohms": "50" },
-  "scope": { "uri": "sim://?seed=1", "profile": "scpi-generic", "channels": {
-     "1": { "probe": "in", "ratio": 10, "ohms": "10M", "farads": "12p" },
-     "2": { "probe": "out", "ratio": 10, "ohms": "10M", "farads": "12p" } } } })";
+        const std::string bench_text = kScopeBenchText;
         store::FitRecord setup;
         setup.session_id = session_id;
         setup.kind = "setup";

@@ -4,7 +4,12 @@
 // Shared by bench_fit and the scipy reference test.
 #pragma once
 
+#include <cmath>
+#include <complex>
+#include <cstdint>
 #include <cstdlib>
+#include <numbers>
+#include <stdexcept>
 #include <filesystem>
 #include <fstream>
 #include <string>
@@ -13,6 +18,7 @@
 #include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
+#include "core/random.h"
 #include "fit/circuit/design.h"
 #include "fit/response/circuit_fit.h"
 
@@ -31,6 +37,40 @@ inline circuit::Design pa1_on_beta_jig() {
     jig["stimulus"]["node"] = "gen";
     jig["probes"]["in"] = "gen";
     return circuit::parse_design(jig.dump(), "HVE-PA1 beta jig");
+}
+
+// The model's own response of the board with parts off nominal (BF 330 instead of the design's,
+// C3 −12 %, C1 −7 %, R1 +0.7 %) at `points` log-spaced frequencies over 1 Hz–10 MHz with seeded
+// noise of 0.05 dB and 0.3°; with `dc`, the meter's readings of b, e and c with the sweep's
+// uncertainty (0.05 % of reading over √3 plus 0.1 mV) and that much noise.
+inline fit::GainData off_nominal_response(const circuit::Design& design, const circuit::BenchLoading& bench, int points,
+                                          std::uint64_t seed, std::vector<fit::DcReading>* dc) {
+    fit::CircuitModel truth(design, bench, {"Q1.beta", "C3"});
+    std::vector<double> p = truth.nominal();
+    for (std::size_t j = 0; j < p.size(); ++j) {
+        const std::string& name = truth.parameters()[j].name;
+        if (name == "Q1.beta") p[j] = 330;
+        if (name == "C3") p[j] *= 0.88;
+        if (name == "C1") p[j] *= 0.93;
+        if (name == "R1") p[j] *= 1.007;
+    }
+    if (!truth.set(p)) throw std::runtime_error("off_nominal_response: no operating point");
+    Random noise(seed);
+    if (dc)
+        for (const char* node : {"b", "e", "c"}) {
+            const double v = truth.operating_point().node_volts[static_cast<std::size_t>(truth.netlist().node_index(node))];
+            const double u = std::abs(v) * 0.0005 / std::sqrt(3.0) + 1e-4;
+            dc->push_back({node, v + noise.normal(0, u), u});
+        }
+    fit::GainData g;
+    g.has_sd = true;
+    for (int i = 0; i < points; ++i) {
+        const double f = std::pow(1e7, i / double(points - 1));
+        const std::complex<double> h = truth.gain(f);
+        g.points.push_back({f, 20 * std::log10(std::abs(h)) + noise.normal(0, 0.05),
+                            fit::wrap_deg(std::arg(h) * 180 / std::numbers::pi + noise.normal(0, 0.3)), 0.05, 0.3});
+    }
+    return g;
 }
 
 inline nlohmann::json circuit_scipy_problem(const circuit::Design& design, const circuit::BenchLoading& bench,

@@ -19,41 +19,15 @@ using namespace ampbench;
 
 namespace {
 
-// The model's own response with parts off nominal, 0.05 dB / 0.3° noise, and its DC node
-// voltages (with 2 mV of meter noise) when `dc` is set.
-fit::GainData off_nominal_response(const circuit::Design& d, const circuit::BenchLoading& bench, int points,
-                                   std::vector<fit::DcReading>* dc) {
-    fit::CircuitModel m(d, bench, {"Q1.beta", "C3"});
-    std::vector<double> p = m.nominal();
-    for (std::size_t j = 0; j < p.size(); ++j) {
-        const std::string& name = m.parameters()[j].name;
-        if (name == "Q1.beta") p[j] = 330;
-        if (name == "C3") p[j] *= 0.88;
-        if (name == "R1") p[j] *= 1.02;
-        if (name == "C1") p[j] *= 0.93;
-    }
-    REQUIRE(m.set(p));
-    fit::GainData g;
-    g.has_sd = true;
-    Random rng(29);
-    for (int i = 0; i < points; ++i) {
-        const double f = std::pow(1e7, i / double(points - 1));
-        const std::complex<double> h = m.gain(f);
-        g.points.push_back({f, 20 * std::log10(std::abs(h)) + rng.normal(0, 0.05),
-                            fit::wrap_deg(std::arg(h) * 180 / std::numbers::pi + rng.normal(0, 0.3)), 0.05, 0.3});
-    }
-    if (dc)
-        for (const char* node : {"b", "e", "c"}) {
-            const double v = m.operating_point().node_volts[static_cast<std::size_t>(m.netlist().node_index(node))];
-            dc->push_back({node, v + rng.normal(0, 0.002), 0.002});
-        }
-    return g;
+circuit::BenchLoading scope_loading() {
+    circuit::BenchLoading bench;
+    bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
+    return bench;
 }
 
 void check_against_scipy(const fit::CircuitFitOptions& opt, const fit::GainData& g, const std::string& tag) {
     const circuit::Design d = testing::pa1_on_beta_jig();
-    circuit::BenchLoading bench;
-    bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
+    const circuit::BenchLoading bench = scope_loading();
     const fit::CircuitFit ours = fit::fit_circuit(d, bench, g, opt);
     INFO(ours.brief());
     REQUIRE(ours.usable());
@@ -78,21 +52,16 @@ void check_against_scipy(const fit::CircuitFitOptions& opt, const fit::GainData&
 }  // namespace
 
 TEST_CASE("circuit fit agrees with scipy's least_squares on the same model", "[fit][circuit_fit][scipy]") {
-    const circuit::Design d = testing::pa1_on_beta_jig();
-    circuit::BenchLoading bench;
-    bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     fit::CircuitFitOptions opt;
     opt.free = {"Q1.beta", "C3"};
-    check_against_scipy(opt, off_nominal_response(d, bench, 40, nullptr), "ac");
+    check_against_scipy(opt, testing::off_nominal_response(testing::pa1_on_beta_jig(), scope_loading(), 40, 29, nullptr), "ac");
 }
 
 TEST_CASE("circuit fit with DC readings agrees with scipy's least_squares", "[fit][circuit_fit][scipy]") {
-    const circuit::Design d = testing::pa1_on_beta_jig();
-    circuit::BenchLoading bench;
-    bench.probes = {{"in", 10e6, 12e-12}, {"out", 10e6, 12e-12}};
     fit::CircuitFitOptions opt;
     opt.free = {"Q1.beta", "C3"};
-    const fit::GainData g = off_nominal_response(d, bench, 30, &opt.dc_readings);
+    const fit::GainData g =
+        testing::off_nominal_response(testing::pa1_on_beta_jig(), scope_loading(), 30, 29, &opt.dc_readings);
     REQUIRE(opt.dc_readings.size() == 3);
     check_against_scipy(opt, g, "dc");
 }
