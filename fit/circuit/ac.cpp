@@ -112,7 +112,8 @@ struct AcAnalysis::Impl {
     // elimination's structure without row exchanges: for pivot k, the rows below it and the
     // columns right of it that hold a nonzero once the earlier pivots' fill is in.
     std::vector<Complex> lu_work, lu_rhs;
-    std::vector<std::vector<int>> below, right;
+    std::vector<int> below_flat, below_start, right_flat, right_start, entry_pos;
+    std::vector<double> entry_g, entry_c, ar, ai, xr, xi;
 
     void build(const Netlist& nl, const OperatingPoint& op) {
         n = nl.unknown_count();
@@ -161,14 +162,13 @@ struct AcAnalysis::Impl {
     }
 
     // V(out)/V(in) from the reduced G + jωC. First Gaussian elimination in the natural order
-    // without row exchanges, skipping the zeros of the sparse nodal matrix; a pivot smaller than
-    // 1e-3 of its column's largest entry (no nodal matrix of this engine's circuits has shown
-    // one, but an inductor's branch row would) sends the frequency to partial pivoting.
+    // without row exchanges, over the structural nonzeros of the sparse nodal matrix (its fill
+    // found once per update); a pivot smaller than 1e-3 of an entry below it (an inductor's branch
+    // row, with its zero diagonal, always gives one) sends the frequency to partial pivoting.
     Complex direct_gain(double freq_hz) {
         const double w = 2 * std::numbers::pi * freq_hz;
-        if (Complex r; eliminate(w, false, &r)) return r;
         Complex r;
-        eliminate(w, true, &r);
+        if (!fixed_gain(w, &r)) pivoted_gain(w, &r);
         return r;
     }
 
@@ -176,43 +176,102 @@ struct AcAnalysis::Impl {
         const auto un = static_cast<size_t>(nr);
         std::vector<char> nz(un * un);
         for (int i = 0; i < nr; ++i)
-            for (int j = 0; j < nr; ++j) nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = g_r(i, j) != 0 || c_r(i, j) != 0;
-        below.assign(un, {});
-        right.assign(un, {});
+            for (int j = 0; j < nr; ++j)
+                nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = i == j || g_r(i, j) != 0 || c_r(i, j) != 0;
+        below_start.assign(1, 0);
+        right_start.assign(1, 0);
+        below_flat.clear();
+        right_flat.clear();
         for (size_t k = 0; k < un; ++k) {
+            const size_t b0 = below_flat.size(), r0 = right_flat.size();
             for (size_t i = k + 1; i < un; ++i) {
-                if (nz[i * un + k]) below[k].push_back(static_cast<int>(i));
-                if (nz[k * un + i]) right[k].push_back(static_cast<int>(i));
+                if (nz[i * un + k]) below_flat.push_back(static_cast<int>(i));
+                if (nz[k * un + i]) right_flat.push_back(static_cast<int>(i));
             }
-            for (const int i : below[k])
-                for (const int j : right[k]) nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = 1;
+            for (size_t bi = b0; bi < below_flat.size(); ++bi)
+                for (size_t rj = r0; rj < right_flat.size(); ++rj)
+                    nz[static_cast<size_t>(below_flat[bi]) * un + static_cast<size_t>(right_flat[rj])] = 1;
+            below_start.push_back(static_cast<int>(below_flat.size()));
+            right_start.push_back(static_cast<int>(right_flat.size()));
         }
+        // Every position the elimination reads or writes, with its G and C entries (0 for fill).
+        entry_pos.clear();
+        entry_g.clear();
+        entry_c.clear();
+        for (size_t i = 0; i < un; ++i)
+            for (size_t j = 0; j < un; ++j)
+                if (nz[i * un + j]) {
+                    const auto ii = static_cast<Eigen::Index>(i), jj = static_cast<Eigen::Index>(j);
+                    entry_pos.push_back(static_cast<int>(i * un + j));
+                    entry_g.push_back(g_r(ii, jj));
+                    entry_c.push_back(c_r(ii, jj));
+                }
+        ar.assign(un * un, 0.0);
+        ai.assign(un * un, 0.0);
+        xr.assign(un, 0.0);
+        xi.assign(un, 0.0);
     }
 
-    // Without row exchanges, over the structural nonzeros only.
-    bool eliminate_fixed(Complex* a, Complex* x, size_t un) const {
+    // Without row exchanges, over the structural nonzeros only, in real arithmetic on split
+    // real and imaginary parts. False when a pivot is small against its column.
+    bool fixed_gain(double w, Complex* gain_out) {
+        const auto un = static_cast<size_t>(nr);
+        double* re = ar.data();
+        double* im = ai.data();
+        for (size_t e = 0; e < entry_pos.size(); ++e) {
+            re[entry_pos[e]] = entry_g[e];
+            im[entry_pos[e]] = w * entry_c[e];
+        }
+        for (size_t i = 0; i < un; ++i) {
+            xr[i] = b_r[static_cast<Eigen::Index>(i)];
+            xi[i] = 0.0;
+        }
         for (size_t k = 0; k < un; ++k) {
-            const Complex pivot = a[k * un + k];
-            double largest = std::norm(pivot);
-            for (const int i : below[k]) largest = std::max(largest, std::norm(a[static_cast<size_t>(i) * un + k]));
-            if (!(std::norm(pivot) > 1e-6 * largest)) return false;
-            const Complex inv = reciprocal(pivot);
-            for (const int ib : below[k]) {
-                const auto i = static_cast<size_t>(ib);
-                const Complex f = a[i * un + k] * inv;
-                for (const int j : right[k]) a[i * un + static_cast<size_t>(j)] -= f * a[k * un + static_cast<size_t>(j)];
-                x[i] -= f * x[k];
+            const size_t kk = k * un + k;
+            const double pr = re[kk], pi = im[kk];
+            const double pn = pr * pr + pi * pi;
+            const int b0 = below_start[k], b1 = below_start[k + 1], r0 = right_start[k], r1 = right_start[k + 1];
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t ik = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]) * un + k;
+                if (!(pn > 1e-6 * (re[ik] * re[ik] + im[ik] * im[ik]))) return false;
+            }
+            if (!(pn > 0)) return false;
+            const double inv_r = pr / pn, inv_i = -pi / pn;
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t i = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]);
+                const size_t ik = i * un + k;
+                const double fr = re[ik] * inv_r - im[ik] * inv_i, fi = re[ik] * inv_i + im[ik] * inv_r;
+                for (int rj = r0; rj < r1; ++rj) {
+                    const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                    const size_t kj = k * un + j, ij = i * un + j;
+                    re[ij] -= fr * re[kj] - fi * im[kj];
+                    im[ij] -= fr * im[kj] + fi * re[kj];
+                }
+                const double x_r = xr[k], x_i = xi[k];
+                xr[i] -= fr * x_r - fi * x_i;
+                xi[i] -= fr * x_i + fi * x_r;
             }
         }
         for (size_t i = un; i-- > 0;) {
-            Complex acc = x[i];
-            for (const int j : right[i]) acc -= a[i * un + static_cast<size_t>(j)] * x[j];
-            x[i] = quotient(acc, a[i * un + i]);
+            double acc_r = xr[i], acc_i = xi[i];
+            for (int rj = right_start[i]; rj < right_start[i + 1]; ++rj) {
+                const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                const size_t ij = i * un + j;
+                acc_r -= re[ij] * xr[j] - im[ij] * xi[j];
+                acc_i -= re[ij] * xi[j] + im[ij] * xr[j];
+            }
+            const Complex v = quotient(Complex(acc_r, acc_i), Complex(re[i * un + i], im[i * un + i]));
+            xr[i] = v.real();
+            xi[i] = v.imag();
         }
+        const Complex v_in = in_r ? Complex(xr[static_cast<size_t>(in_r - 1)], xi[static_cast<size_t>(in_r - 1)]) : Complex(0);
+        const Complex v_out = out_r ? Complex(xr[static_cast<size_t>(out_r - 1)], xi[static_cast<size_t>(out_r - 1)]) : Complex(0);
+        *gain_out = quotient(v_out, v_in);
         return true;
     }
 
-    bool eliminate(double w, bool pivoting, Complex* gain_out) {
+    // Partial pivoting over the whole matrix: the fallback for a small pivot.
+    void pivoted_gain(double w, Complex* gain_out) {
         const auto un = static_cast<size_t>(nr);
         Complex* a = lu_work.data();
         Complex* x = lu_rhs.data();
@@ -222,13 +281,6 @@ struct AcAnalysis::Impl {
                 a[i * un + j] = Complex(g_r(ii, jj), w * c_r(ii, jj));
             }
             x[i] = b_r[static_cast<Eigen::Index>(i)];
-        }
-        if (!pivoting) {
-            if (!eliminate_fixed(a, x, un)) return false;
-            const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
-            const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
-            *gain_out = quotient(v_out, v_in);
-            return true;
         }
         for (size_t k = 0; k < un; ++k) {
             size_t pivot = k;
@@ -264,7 +316,6 @@ struct AcAnalysis::Impl {
         const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
         const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
         *gain_out = quotient(v_out, v_in);
-        return true;
     }
 
     void eliminate_grounded_sources(const Netlist& nl) {
