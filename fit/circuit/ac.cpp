@@ -113,7 +113,7 @@ struct AcAnalysis::Impl {
     // columns right of it that hold a nonzero once the earlier pivots' fill is in.
     std::vector<Complex> lu_work, lu_rhs;
     std::vector<int> below_flat, below_start, right_flat, right_start, entry_pos;
-    std::vector<double> entry_g, entry_c, ar, ai, xr, xi;
+    std::vector<double> entry_g, entry_c, ar, ai, xr, xi, lane_re, lane_im, lane_xr, lane_xi;
 
     void build(const Netlist& nl, const OperatingPoint& op) {
         n = nl.unknown_count();
@@ -268,6 +268,102 @@ struct AcAnalysis::Impl {
         const Complex v_out = out_r ? Complex(xr[static_cast<size_t>(out_r - 1)], xi[static_cast<size_t>(out_r - 1)]) : Complex(0);
         *gain_out = quotient(v_out, v_in);
         return true;
+    }
+
+    // fixed_gain for kLanes frequencies at once: the same elimination with every value a row of
+    // kLanes, so the compiler vectorises across frequencies. ok[l] false: lane l needs pivoting.
+    static constexpr int kLanes = 4;
+    void fixed_gains(const double* w, Complex* result, bool* ok) {
+        const auto un = static_cast<size_t>(nr);
+        constexpr size_t L = kLanes;
+        lane_re.resize(un * un * L);
+        lane_im.resize(un * un * L);
+        lane_xr.resize(un * L);
+        lane_xi.resize(un * L);
+        // Four distinct buffers: __restrict lets the compiler vectorise the lane loops.
+        double* __restrict re = lane_re.data();
+        double* __restrict im = lane_im.data();
+        double* __restrict x_r = lane_xr.data();
+        double* __restrict x_i = lane_xi.data();
+        bool good[L];
+        for (size_t l = 0; l < L; ++l) good[l] = true;
+        for (size_t e = 0; e < entry_pos.size(); ++e) {
+            const size_t at = static_cast<size_t>(entry_pos[e]) * L;
+            for (size_t l = 0; l < L; ++l) {
+                re[at + l] = entry_g[e];
+                im[at + l] = w[l] * entry_c[e];
+            }
+        }
+        for (size_t i = 0; i < un; ++i)
+            for (size_t l = 0; l < L; ++l) {
+                x_r[i * L + l] = b_r[static_cast<Eigen::Index>(i)];
+                x_i[i * L + l] = 0.0;
+            }
+        for (size_t k = 0; k < un; ++k) {
+            const size_t kk = (k * un + k) * L;
+            double inv_r[L], inv_i[L], pn[L];
+            for (size_t l = 0; l < L; ++l) pn[l] = re[kk + l] * re[kk + l] + im[kk + l] * im[kk + l];
+            const int b0 = below_start[k], b1 = below_start[k + 1], r0 = right_start[k], r1 = right_start[k + 1];
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t ik = (static_cast<size_t>(below_flat[static_cast<size_t>(bi)]) * un + k) * L;
+                for (size_t l = 0; l < L; ++l)
+                    good[l] = good[l] && pn[l] > 1e-6 * (re[ik + l] * re[ik + l] + im[ik + l] * im[ik + l]);
+            }
+            for (size_t l = 0; l < L; ++l) {
+                good[l] = good[l] && pn[l] > 0;
+                const double d = pn[l] > 0 ? pn[l] : 1.0;
+                inv_r[l] = re[kk + l] / d;
+                inv_i[l] = -im[kk + l] / d;
+            }
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t i = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]);
+                const size_t ik = (i * un + k) * L;
+                double fr[L], fi[L];
+                for (size_t l = 0; l < L; ++l) {
+                    fr[l] = re[ik + l] * inv_r[l] - im[ik + l] * inv_i[l];
+                    fi[l] = re[ik + l] * inv_i[l] + im[ik + l] * inv_r[l];
+                }
+                for (int rj = r0; rj < r1; ++rj) {
+                    const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                    const size_t kj = (k * un + j) * L, ij = (i * un + j) * L;
+                    for (size_t l = 0; l < L; ++l) {
+                        re[ij + l] -= fr[l] * re[kj + l] - fi[l] * im[kj + l];
+                        im[ij + l] -= fr[l] * im[kj + l] + fi[l] * re[kj + l];
+                    }
+                }
+                for (size_t l = 0; l < L; ++l) {
+                    const double xr_k = x_r[k * L + l], xi_k = x_i[k * L + l];
+                    x_r[i * L + l] -= fr[l] * xr_k - fi[l] * xi_k;
+                    x_i[i * L + l] -= fr[l] * xi_k + fi[l] * xr_k;
+                }
+            }
+        }
+        for (size_t i = un; i-- > 0;) {
+            double acc_r[L], acc_i[L];
+            for (size_t l = 0; l < L; ++l) acc_r[l] = x_r[i * L + l], acc_i[l] = x_i[i * L + l];
+            for (int rj = right_start[i]; rj < right_start[i + 1]; ++rj) {
+                const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                const size_t ij = (i * un + j) * L;
+                for (size_t l = 0; l < L; ++l) {
+                    acc_r[l] -= re[ij + l] * x_r[j * L + l] - im[ij + l] * x_i[j * L + l];
+                    acc_i[l] -= re[ij + l] * x_i[j * L + l] + im[ij + l] * x_r[j * L + l];
+                }
+            }
+            const size_t ii = (i * un + i) * L;
+            for (size_t l = 0; l < L; ++l) {
+                const double dr = re[ii + l], di = im[ii + l];
+                const double n2 = dr * dr + di * di;
+                const double inv = n2 > 0 ? 1.0 / n2 : 0.0;
+                x_r[i * L + l] = (acc_r[l] * dr + acc_i[l] * di) * inv;
+                x_i[i * L + l] = (acc_i[l] * dr - acc_r[l] * di) * inv;
+            }
+        }
+        for (size_t l = 0; l < L; ++l) {
+            ok[l] = good[l];
+            const Complex v_in = in_r ? Complex(x_r[static_cast<size_t>(in_r - 1) * L + l], x_i[static_cast<size_t>(in_r - 1) * L + l]) : Complex(0);
+            const Complex v_out = out_r ? Complex(x_r[static_cast<size_t>(out_r - 1) * L + l], x_i[static_cast<size_t>(out_r - 1) * L + l]) : Complex(0);
+            result[l] = good[l] ? quotient(v_out, v_in) : Complex(0);
+        }
     }
 
     // Partial pivoting over the whole matrix: the fallback for a small pivot.
@@ -530,6 +626,23 @@ std::complex<double> AcAnalysis::gain(double freq_hz) {
         out_im += co.real() * r_im + co.imag() * r_re;
     }
     return quotient(Complex(out_re, out_im), Complex(in_re, in_im));
+}
+
+void AcAnalysis::gains(std::span<const double> freq_hz, std::span<std::complex<double>> out) {
+    Impl& d = *impl_;
+    std::size_t i = 0;
+    if (d.method == AcMethod::direct) {
+        constexpr std::size_t lanes = Impl::kLanes;
+        for (; i + lanes <= freq_hz.size(); i += lanes) {
+            double w[lanes];
+            bool ok[lanes];
+            for (std::size_t l = 0; l < lanes; ++l) w[l] = 2 * std::numbers::pi * freq_hz[i + l];
+            d.fixed_gains(w, &out[i], ok);
+            for (std::size_t l = 0; l < lanes; ++l)
+                if (!ok[l]) d.pivoted_gain(w[l], &out[i + l]);
+        }
+    }
+    for (; i < freq_hz.size(); ++i) out[i] = gain(freq_hz[i]);
 }
 
 std::complex<double> AcAnalysis::output_impedance(double freq_hz) {

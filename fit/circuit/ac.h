@@ -4,6 +4,7 @@
 
 #include <complex>
 #include <memory>
+#include <span>
 #include <vector>
 
 #include "fit/circuit/dc.h"
@@ -42,6 +43,9 @@ public:
     AcPoint point(double freq_hz);
     // The gain alone, the same as point(f).gain but cheaper.
     std::complex<double> gain(double freq_hz);
+    // gain() at every frequency of `freq_hz` into `out` (same size); the direct method solves
+    // four frequencies per pass.
+    void gains(std::span<const double> freq_hz, std::span<std::complex<double>> out);
     // Thevenin impedance at the out probe (generator EMF zeroed, its resistance kept).
     std::complex<double> output_impedance(double freq_hz);
     // Every MNA unknown (node voltages 1..N−1, then branch currents) for the generator drive.

@@ -231,6 +231,9 @@ bool CircuitModel::set(std::span<const double> p) {
 }
 
 std::complex<double> CircuitModel::gain(double freq_hz) { return impl_->ac->gain(freq_hz); }
+void CircuitModel::gains(std::span<const double> freq_hz, std::span<std::complex<double>> out) {
+    impl_->ac->gains(freq_hz, out);
+}
 const circuit::OperatingPoint& CircuitModel::operating_point() const { return impl_->op; }
 const circuit::Netlist& CircuitModel::netlist() const { return impl_->nl; }
 
@@ -244,9 +247,11 @@ public:
                      const std::vector<int>& dc_nodes, const std::vector<DcReading>& dc)
         : model_(model), data_(data), priors_(priors), dc_nodes_(dc_nodes), dc_(dc) {
         for (const GainPoint& pt : data.points) {
+            freqs_.push_back(pt.freq_hz);
             sd_db_.push_back(data.has_sd ? pt.gain_db_sd : sd_db);
             sd_deg_.push_back(data.has_sd && data.has_phase ? pt.phase_deg_sd : sd_deg);
         }
+        h_.resize(freqs_.size());
         for (const CircuitParameter& p : model.parameters())
             if (!p.free && priors_) ++prior_count_;
     }
@@ -284,9 +289,10 @@ private:
             std::fill(r.begin(), r.end(), std::numeric_limits<double>::quiet_NaN());
             return;
         }
+        model_.gains(freqs_, h_);
         for (std::size_t i = 0; i < n; ++i) {
             const GainPoint& pt = data_.points[i];
-            const std::complex<double> h = model_.gain(pt.freq_hz);
+            const std::complex<double> h = h_[i];
             const double mag = std::sqrt(h.real() * h.real() + h.imag() * h.imag());
             r[i] = (20.0 * std::log10(mag) - pt.gain_db) / sd_db_[i];
             if (data_.has_phase) r[n + i] = wrap_deg(std::atan2(h.imag(), h.real()) * deg_per_rad - pt.phase_deg) / sd_deg_[i];
@@ -307,7 +313,8 @@ private:
     bool priors_;
     std::vector<int> dc_nodes_;
     std::vector<DcReading> dc_;
-    std::vector<double> sd_db_, sd_deg_;
+    std::vector<double> sd_db_, sd_deg_, freqs_;
+    mutable std::vector<std::complex<double>> h_;
     std::size_t prior_count_ = 0;
     mutable std::vector<double> up_, down_;
 };

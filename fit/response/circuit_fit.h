@@ -48,6 +48,8 @@ public:
     bool set(std::span<const double> p);
     // After a successful set(): V(out)/V(in), and the operating point.
     std::complex<double> gain(double freq_hz);
+    // gain() at every frequency, in one pass.
+    void gains(std::span<const double> freq_hz, std::span<std::complex<double>> out);
     const circuit::OperatingPoint& operating_point() const;
     const circuit::Netlist& netlist() const;
 
