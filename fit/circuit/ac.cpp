@@ -272,7 +272,7 @@ struct AcAnalysis::Impl {
 
     // fixed_gain for kLanes frequencies at once: the same elimination with every value a row of
     // kLanes, so the compiler vectorises across frequencies. ok[l] false: lane l needs pivoting.
-    static constexpr int kLanes = 4;
+    static constexpr int kLanes = 8;
     void fixed_gains(const double* w, Complex* result, bool* ok) {
         const auto un = static_cast<size_t>(nr);
         constexpr size_t L = kLanes;
