@@ -137,6 +137,16 @@ constexpr const char* kScopeBenchText = R"({ "format": "ampbench-bench/1", "main
      "1": { "probe": "in", "ratio": 10, "ohms": "10M", "farads": "12p" },
      "2": { "probe": "out", "ratio": 10, "ohms": "10M", "farads": "12p" } } } })";
 
+// Identified, within 5 % of the true β0 and inside its interval. Source: ngspice's
+// β0 = gm/gpi of the simulated board's Q1 (BF 330) at its .op.
+void check_identified(const extract::EffectiveBeta& b, double ngspice_beta0) {
+    INFO(b.brief() << " / ngspice beta0 " << ngspice_beta0);
+    CHECK(b.verdict == extract::kBetaIdentified);
+    CHECK(std::abs(b.beta0 / ngspice_beta0 - 1) < 0.05);
+    CHECK(b.ci_low < ngspice_beta0);
+    CHECK(b.ci_high > ngspice_beta0);
+}
+
 circuit::BenchLoading scope_bench() {
     circuit::BenchLoading b;
     b.generator_ohms = 50;
@@ -157,12 +167,7 @@ TEST_CASE("beta_eff is identified within 5 % through a known series resistance",
     INFO(f.brief());
     REQUIRE(f.usable());
     const extract::EffectiveBeta b = extract::effective_beta(f, design, bench);
-    INFO(b.brief() << " / ngspice beta0 " << sim.beta0);
-    // Source: ngspice's β0 = gm/gpi of the simulated board's Q1 (BF 330).
-    CHECK(b.verdict == extract::kBetaIdentified);
-    CHECK(std::abs(b.beta0 / sim.beta0 - 1) < 0.05);
-    CHECK(b.ci_low < sim.beta0);
-    CHECK(b.ci_high > sim.beta0);
+    check_identified(b, sim.beta0);
     CHECK(b.hfe > 0);
     CHECK(b.bf > 0);
     CHECK(f.report.chi2_reduced < 2.0);
@@ -253,13 +258,7 @@ TEST_CASE("DC readings of base, emitter and collector identify beta on a 50 ohm 
         INFO(f.dc_readings[k].node << ": model " << f.dc_model_volts[k] << " V, reading " << f.dc_readings[k].volts);
         CHECK(std::abs(f.dc_model_volts[k] - f.dc_readings[k].volts) < 4 * f.dc_readings[k].sd_volts);
     }
-    const extract::EffectiveBeta b = extract::effective_beta(f, design, bench);
-    INFO(b.brief() << " / ngspice beta0 " << sim.beta0);
-    // Source: ngspice's β0 = gm/gpi of the simulated board's Q1 (BF 330), from its .op.
-    CHECK(b.verdict == extract::kBetaIdentified);
-    CHECK(std::abs(b.beta0 / sim.beta0 - 1) < 0.05);
-    CHECK(b.ci_low < sim.beta0);
-    CHECK(b.ci_high > sim.beta0);
+    check_identified(extract::effective_beta(f, design, bench), sim.beta0);
     CHECK(f.report.chi2_reduced < 2.0);
 
     // The same AC data without the readings leave beta unidentified (the case above).
