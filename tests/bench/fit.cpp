@@ -159,17 +159,12 @@ int main() {
     std::cout << fmt::format("  ampbench full fit report  {:10.3f} ms  (with derived quantities and intervals)\n",
                              circuit_s * 1e3);
     std::cout << fmt::format("  effective beta            {:10.3f} ms  ({})\n", beta_s * 1e3, beta.brief());
-    std::cout << fmt::format("  scipy least_squares (lm)  {:10.3f} ms  ({} evaluations, numpy port of the model)\n",
-                             cscipy_s * 1e3, cscipy.at("nfev").get<int>());
+    std::cout << fmt::format("  scipy least_squares (lm)  {:10.3f} ms  ({} evaluations and {} Jacobians, numpy port of the model)\n",
+                             cscipy_s * 1e3, cscipy.at("nfev").get<int>(), cscipy.at("njev").get<int>());
     std::cout << fmt::format("  ratio scipy / ampbench LM   {:8.1f}x\n", cscipy_s / circuit_lm_s);
     std::cout << fmt::format("  ratio scipy / full report   {:8.1f}x\n", cscipy_s / circuit_s);
     std::cout << fmt::format("  largest relative parameter difference {:.2e} ({})\n", circuit_worst, circuit_worst_name);
     std::cout << fmt::format("  sum of squares: ampbench {:.10g}, scipy {:.10g}\n", cfit.report.rss, cscipy.at("cost").get<double>());
-    if (std::getenv("BENCH_FIT_DUMP")) {
-        nlohmann::json dump = cproblem;
-        dump["ampbench_params"] = cfit.report.values();
-        std::ofstream(std::getenv("BENCH_FIT_DUMP")) << dump.dump();
-    }
     if (!(circuit_worst <= 1e-5) || !(worst_rel <= 1e-5)) {
         std::cerr << "bench_fit: ampbench and scipy disagree on the fitted parameters\n";
         return 1;
