@@ -1,7 +1,7 @@
 // `ampbench fit (SESSION | --csv FILE) [--design D] [--bench B] [--model auto|rational:L,H|circuit]
 // [--free LIST] [--json]`: fits a transfer function (or the design's circuit model) to measured
 // gain points and reports midband gain, corners and, for the circuit model, the effective beta,
-// each with its 95 % interval.
+// each with its 95 % interval. A session's DC readings of the bias nodes enter the circuit fit.
 #include <cmath>
 #include <optional>
 #include <ostream>
@@ -104,6 +104,12 @@ ordered_json to_json(const fit::CircuitFit& f, const extract::EffectiveBeta& b) 
         priors.push_back({{"name", p.name}, {"nominal", p.nominal}, {"free", p.free},
                           {"prior_sd_ln", p.free ? ordered_json(nullptr) : ordered_json(p.prior_sd_ln)}});
     out["parameters"] = priors;
+    ordered_json dc = ordered_json::array();
+    for (std::size_t k = 0; k < f.dc_readings.size(); ++k)
+        dc.push_back({{"node", f.dc_readings[k].node}, {"volts", f.dc_readings[k].volts},
+                      {"u_v", f.dc_readings[k].sd_volts},
+                      {"model_volts", k < f.dc_model_volts.size() ? finite_or_null(f.dc_model_volts[k]) : ordered_json(nullptr)}});
+    out["dc_readings"] = dc;
     return out;
 }
 
@@ -125,6 +131,36 @@ fit::GainData session_points(store::Archive& archive, std::int64_t id, const std
         d.points.push_back(g);
     }
     return d;
+}
+
+// What the session's sweep recorded at power-up (its latest "setup" record: a resumed session
+// has one per run): the meter's DC readings of the bias nodes and the bench file it ran on.
+struct SessionSetup {
+    std::vector<fit::DcReading> dc;
+    std::optional<BenchFile> bench;
+};
+
+SessionSetup session_setup(store::Archive& archive, std::int64_t id) {
+    SessionSetup out;
+    const store::SessionDetail detail = archive.session_detail(id);
+    const std::string where = fmt::format("session {} set-up", id);
+    for (const store::FitRecord& f : detail.fits) {
+        if (f.kind != "setup") continue;
+        const auto j = nlohmann::json::parse(f.params_json, nullptr, false);
+        if (!j.is_object()) throw InputError(where, "params", "the stored set-up record is not JSON");
+        out.dc.clear();
+        if (j.contains("dc") && j.at("dc").is_array())
+            for (const auto& d : j.at("dc")) {
+                if (!d.contains("node") || !d.contains("volts") || !d.contains("u_v") || !d.at("volts").is_number() ||
+                    !d.at("u_v").is_number())
+                    throw InputError(where, "dc", "a DC reading lacks its node, volts or u_v");
+                out.dc.push_back({circuit::canonical_node(d.at("node").get<std::string>()), d.at("volts").get<double>(),
+                                  d.at("u_v").get<double>()});
+            }
+        if (j.contains("bench_text") && j.at("bench_text").is_string())
+            out.bench = parse_bench_file(j.at("bench_text").get<std::string>(), where);
+    }
+    return out;
 }
 
 template <class Fit>
@@ -172,13 +208,23 @@ int run_fit(Context& ctx, const FitArgs& args) {
     }
     if (circuit_model) {
         const circuit::Design design = circuit::load_design(args.design);
-        const circuit::BenchLoading loading =
-            args.bench.empty() ? circuit::BenchLoading{} : circuit::bench_loading(load_bench_file(args.bench));
+        // A session brings its sweep's DC readings (residual rows against the model's operating
+        // point) and, unless --bench says otherwise, the bench it was measured on.
+        SessionSetup setup;
+        if (archive) setup = session_setup(*archive, *args.session);
+        circuit::BenchLoading loading;
+        if (!args.bench.empty())
+            loading = circuit::bench_loading(load_bench_file(args.bench));
+        else if (setup.bench)
+            loading = circuit::bench_loading(*setup.bench);
         fit::CircuitFitOptions copt;
         copt.free = fit::parse_free_list(args.free);
+        copt.dc_readings = setup.dc;
         fit::CircuitFit result = fit::fit_circuit(design, loading, data, copt);
-        if (args.bench.empty())
+        if (args.bench.empty() && !setup.bench)
             result.notes.push_back("no --bench: a 50 Ω generator and unloaded probes assumed");
+        else if (args.bench.empty())
+            result.notes.push_back("bench loading from the session's set-up record");
         const extract::EffectiveBeta beta = extract::effective_beta(result, design, loading);
         const ordered_json json = to_json(result, beta);
         if (archive)

@@ -80,6 +80,7 @@ void stamp_transistor_small_signal(const Transistor& t, const BjtEval& ev, int n
 }
 
 struct AcAnalysis::Impl {
+    AcMethod method = AcMethod::fast;
     int n = 0;
     int in = 0, out = 0, stimulus = 0;
     // The reduced system the fast paths work on: the full MNA without the nodes a grounded
@@ -107,6 +108,12 @@ struct AcAnalysis::Impl {
     Eigen::EigenSolver<Eigen::MatrixXd> eig;
     Eigen::VectorXcd lambda, c_in, c_out, c_stim, c_zout, denom;
     Eigen::VectorXd w_drive, w_out;
+    // The direct method's buffers: row-major nr×nr G + jωC and its right-hand side, and the
+    // elimination's structure without row exchanges: for pivot k, the rows below it and the
+    // columns right of it that hold a nonzero once the earlier pivots' fill is in.
+    std::vector<Complex> lu_work, lu_rhs;
+    std::vector<int> below_flat, below_start, right_flat, right_start, entry_pos;
+    std::vector<double> entry_g, entry_c, ar, ai, xr, xi, lane_re, lane_im, lane_xr, lane_xi;
 
     void build(const Netlist& nl, const OperatingPoint& op) {
         n = nl.unknown_count();
@@ -144,7 +151,267 @@ struct AcAnalysis::Impl {
                 c_rows[static_cast<size_t>(i) * n + j] = c(i, j);
             }
         eliminate_grounded_sources(nl);
+        if (method == AcMethod::direct) {
+            fast = modal = false;
+            lu_work.resize(static_cast<size_t>(nr) * nr);
+            lu_rhs.resize(static_cast<size_t>(nr));
+            symbolic();
+            return;
+        }
         reduce();
+    }
+
+    // V(out)/V(in) from the reduced G + jωC. First Gaussian elimination in the natural order
+    // without row exchanges, over the structural nonzeros of the sparse nodal matrix (its fill
+    // found once per update); a pivot smaller than 1e-3 of an entry below it (an inductor's branch
+    // row, with its zero diagonal, always gives one) sends the frequency to partial pivoting.
+    Complex direct_gain(double freq_hz) {
+        const double w = 2 * std::numbers::pi * freq_hz;
+        Complex r;
+        if (!fixed_gain(w, &r)) pivoted_gain(w, &r);
+        return r;
+    }
+
+    void symbolic() {
+        const auto un = static_cast<size_t>(nr);
+        std::vector<char> nz(un * un);
+        for (int i = 0; i < nr; ++i)
+            for (int j = 0; j < nr; ++j)
+                nz[static_cast<size_t>(i) * un + static_cast<size_t>(j)] = i == j || g_r(i, j) != 0 || c_r(i, j) != 0;
+        below_start.assign(1, 0);
+        right_start.assign(1, 0);
+        below_flat.clear();
+        right_flat.clear();
+        for (size_t k = 0; k < un; ++k) {
+            const size_t b0 = below_flat.size(), r0 = right_flat.size();
+            for (size_t i = k + 1; i < un; ++i) {
+                if (nz[i * un + k]) below_flat.push_back(static_cast<int>(i));
+                if (nz[k * un + i]) right_flat.push_back(static_cast<int>(i));
+            }
+            for (size_t bi = b0; bi < below_flat.size(); ++bi)
+                for (size_t rj = r0; rj < right_flat.size(); ++rj)
+                    nz[static_cast<size_t>(below_flat[bi]) * un + static_cast<size_t>(right_flat[rj])] = 1;
+            below_start.push_back(static_cast<int>(below_flat.size()));
+            right_start.push_back(static_cast<int>(right_flat.size()));
+        }
+        // Every position the elimination reads or writes, with its G and C entries (0 for fill).
+        entry_pos.clear();
+        entry_g.clear();
+        entry_c.clear();
+        for (size_t i = 0; i < un; ++i)
+            for (size_t j = 0; j < un; ++j)
+                if (nz[i * un + j]) {
+                    const auto ii = static_cast<Eigen::Index>(i), jj = static_cast<Eigen::Index>(j);
+                    entry_pos.push_back(static_cast<int>(i * un + j));
+                    entry_g.push_back(g_r(ii, jj));
+                    entry_c.push_back(c_r(ii, jj));
+                }
+        ar.assign(un * un, 0.0);
+        ai.assign(un * un, 0.0);
+        xr.assign(un, 0.0);
+        xi.assign(un, 0.0);
+    }
+
+    // Without row exchanges, over the structural nonzeros only, in real arithmetic on split
+    // real and imaginary parts. False when a pivot is small against its column.
+    bool fixed_gain(double w, Complex* gain_out) {
+        const auto un = static_cast<size_t>(nr);
+        double* re = ar.data();
+        double* im = ai.data();
+        for (size_t e = 0; e < entry_pos.size(); ++e) {
+            re[entry_pos[e]] = entry_g[e];
+            im[entry_pos[e]] = w * entry_c[e];
+        }
+        for (size_t i = 0; i < un; ++i) {
+            xr[i] = b_r[static_cast<Eigen::Index>(i)];
+            xi[i] = 0.0;
+        }
+        for (size_t k = 0; k < un; ++k) {
+            const size_t kk = k * un + k;
+            const double pr = re[kk], pi = im[kk];
+            const double pn = pr * pr + pi * pi;
+            const int b0 = below_start[k], b1 = below_start[k + 1], r0 = right_start[k], r1 = right_start[k + 1];
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t ik = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]) * un + k;
+                if (!(pn > 1e-6 * (re[ik] * re[ik] + im[ik] * im[ik]))) return false;
+            }
+            if (!(pn > 0)) return false;
+            const double inv_r = pr / pn, inv_i = -pi / pn;
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t i = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]);
+                const size_t ik = i * un + k;
+                const double fr = re[ik] * inv_r - im[ik] * inv_i, fi = re[ik] * inv_i + im[ik] * inv_r;
+                for (int rj = r0; rj < r1; ++rj) {
+                    const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                    const size_t kj = k * un + j, ij = i * un + j;
+                    re[ij] -= fr * re[kj] - fi * im[kj];
+                    im[ij] -= fr * im[kj] + fi * re[kj];
+                }
+                const double x_r = xr[k], x_i = xi[k];
+                xr[i] -= fr * x_r - fi * x_i;
+                xi[i] -= fr * x_i + fi * x_r;
+            }
+        }
+        for (size_t i = un; i-- > 0;) {
+            double acc_r = xr[i], acc_i = xi[i];
+            for (int rj = right_start[i]; rj < right_start[i + 1]; ++rj) {
+                const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                const size_t ij = i * un + j;
+                acc_r -= re[ij] * xr[j] - im[ij] * xi[j];
+                acc_i -= re[ij] * xi[j] + im[ij] * xr[j];
+            }
+            const Complex v = quotient(Complex(acc_r, acc_i), Complex(re[i * un + i], im[i * un + i]));
+            xr[i] = v.real();
+            xi[i] = v.imag();
+        }
+        const Complex v_in = in_r ? Complex(xr[static_cast<size_t>(in_r - 1)], xi[static_cast<size_t>(in_r - 1)]) : Complex(0);
+        const Complex v_out = out_r ? Complex(xr[static_cast<size_t>(out_r - 1)], xi[static_cast<size_t>(out_r - 1)]) : Complex(0);
+        *gain_out = quotient(v_out, v_in);
+        return true;
+    }
+
+    // fixed_gain for kLanes frequencies at once: the same elimination with every value a row of
+    // kLanes, so the compiler vectorises across frequencies. ok[l] false: lane l needs pivoting.
+    static constexpr int kLanes = 8;
+    void fixed_gains(const double* w, Complex* result, bool* ok) {
+        const auto un = static_cast<size_t>(nr);
+        constexpr size_t L = kLanes;
+        lane_re.resize(un * un * L);
+        lane_im.resize(un * un * L);
+        lane_xr.resize(un * L);
+        lane_xi.resize(un * L);
+        // Four distinct buffers: __restrict lets the compiler vectorise the lane loops.
+        double* __restrict re = lane_re.data();
+        double* __restrict im = lane_im.data();
+        double* __restrict x_r = lane_xr.data();
+        double* __restrict x_i = lane_xi.data();
+        bool good[L];
+        for (size_t l = 0; l < L; ++l) good[l] = true;
+        for (size_t e = 0; e < entry_pos.size(); ++e) {
+            const size_t at = static_cast<size_t>(entry_pos[e]) * L;
+            for (size_t l = 0; l < L; ++l) {
+                re[at + l] = entry_g[e];
+                im[at + l] = w[l] * entry_c[e];
+            }
+        }
+        for (size_t i = 0; i < un; ++i)
+            for (size_t l = 0; l < L; ++l) {
+                x_r[i * L + l] = b_r[static_cast<Eigen::Index>(i)];
+                x_i[i * L + l] = 0.0;
+            }
+        for (size_t k = 0; k < un; ++k) {
+            const size_t kk = (k * un + k) * L;
+            double inv_r[L], inv_i[L], pn[L];
+            for (size_t l = 0; l < L; ++l) pn[l] = re[kk + l] * re[kk + l] + im[kk + l] * im[kk + l];
+            const int b0 = below_start[k], b1 = below_start[k + 1], r0 = right_start[k], r1 = right_start[k + 1];
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t ik = (static_cast<size_t>(below_flat[static_cast<size_t>(bi)]) * un + k) * L;
+                for (size_t l = 0; l < L; ++l)
+                    good[l] = good[l] && pn[l] > 1e-6 * (re[ik + l] * re[ik + l] + im[ik + l] * im[ik + l]);
+            }
+            for (size_t l = 0; l < L; ++l) {
+                good[l] = good[l] && pn[l] > 0;
+                const double d = pn[l] > 0 ? pn[l] : 1.0;
+                inv_r[l] = re[kk + l] / d;
+                inv_i[l] = -im[kk + l] / d;
+            }
+            for (int bi = b0; bi < b1; ++bi) {
+                const size_t i = static_cast<size_t>(below_flat[static_cast<size_t>(bi)]);
+                const size_t ik = (i * un + k) * L;
+                double fr[L], fi[L];
+                for (size_t l = 0; l < L; ++l) {
+                    fr[l] = re[ik + l] * inv_r[l] - im[ik + l] * inv_i[l];
+                    fi[l] = re[ik + l] * inv_i[l] + im[ik + l] * inv_r[l];
+                }
+                for (int rj = r0; rj < r1; ++rj) {
+                    const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                    const size_t kj = (k * un + j) * L, ij = (i * un + j) * L;
+                    for (size_t l = 0; l < L; ++l) {
+                        re[ij + l] -= fr[l] * re[kj + l] - fi[l] * im[kj + l];
+                        im[ij + l] -= fr[l] * im[kj + l] + fi[l] * re[kj + l];
+                    }
+                }
+                for (size_t l = 0; l < L; ++l) {
+                    const double xr_k = x_r[k * L + l], xi_k = x_i[k * L + l];
+                    x_r[i * L + l] -= fr[l] * xr_k - fi[l] * xi_k;
+                    x_i[i * L + l] -= fr[l] * xi_k + fi[l] * xr_k;
+                }
+            }
+        }
+        for (size_t i = un; i-- > 0;) {
+            double acc_r[L], acc_i[L];
+            for (size_t l = 0; l < L; ++l) acc_r[l] = x_r[i * L + l], acc_i[l] = x_i[i * L + l];
+            for (int rj = right_start[i]; rj < right_start[i + 1]; ++rj) {
+                const size_t j = static_cast<size_t>(right_flat[static_cast<size_t>(rj)]);
+                const size_t ij = (i * un + j) * L;
+                for (size_t l = 0; l < L; ++l) {
+                    acc_r[l] -= re[ij + l] * x_r[j * L + l] - im[ij + l] * x_i[j * L + l];
+                    acc_i[l] -= re[ij + l] * x_i[j * L + l] + im[ij + l] * x_r[j * L + l];
+                }
+            }
+            const size_t ii = (i * un + i) * L;
+            for (size_t l = 0; l < L; ++l) {
+                const double dr = re[ii + l], di = im[ii + l];
+                const double n2 = dr * dr + di * di;
+                const double inv = n2 > 0 ? 1.0 / n2 : 0.0;
+                x_r[i * L + l] = (acc_r[l] * dr + acc_i[l] * di) * inv;
+                x_i[i * L + l] = (acc_i[l] * dr - acc_r[l] * di) * inv;
+            }
+        }
+        for (size_t l = 0; l < L; ++l) {
+            ok[l] = good[l];
+            const Complex v_in = in_r ? Complex(x_r[static_cast<size_t>(in_r - 1) * L + l], x_i[static_cast<size_t>(in_r - 1) * L + l]) : Complex(0);
+            const Complex v_out = out_r ? Complex(x_r[static_cast<size_t>(out_r - 1) * L + l], x_i[static_cast<size_t>(out_r - 1) * L + l]) : Complex(0);
+            result[l] = good[l] ? quotient(v_out, v_in) : Complex(0);
+        }
+    }
+
+    // Partial pivoting over the whole matrix: the fallback for a small pivot.
+    void pivoted_gain(double w, Complex* gain_out) {
+        const auto un = static_cast<size_t>(nr);
+        Complex* a = lu_work.data();
+        Complex* x = lu_rhs.data();
+        for (size_t i = 0; i < un; ++i) {
+            for (size_t j = 0; j < un; ++j) {
+                const auto ii = static_cast<Eigen::Index>(i), jj = static_cast<Eigen::Index>(j);
+                a[i * un + j] = Complex(g_r(ii, jj), w * c_r(ii, jj));
+            }
+            x[i] = b_r[static_cast<Eigen::Index>(i)];
+        }
+        for (size_t k = 0; k < un; ++k) {
+            size_t pivot = k;
+            double best = std::norm(a[k * un + k]), largest = best;
+            for (size_t i = k + 1; i < un; ++i) {
+                const double v = std::norm(a[i * un + k]);
+                largest = std::max(largest, v);
+                if (v > best) best = v, pivot = i;
+            }
+            if (pivot != k) {
+                for (size_t j = k; j < un; ++j) std::swap(a[k * un + j], a[pivot * un + j]);
+                std::swap(x[k], x[pivot]);
+            }
+            if (!(largest > 0)) continue;
+            const Complex inv = reciprocal(a[k * un + k]);
+            for (size_t i = k + 1; i < un; ++i) {
+                const Complex aik = a[i * un + k];
+                if (aik == Complex(0)) continue;  // nodal rows are sparse: most multipliers are 0
+                const Complex f = aik * inv;
+                for (size_t j = k + 1; j < un; ++j) {
+                    const Complex akj = a[k * un + j];
+                    if (akj != Complex(0)) a[i * un + j] -= f * akj;
+                }
+                x[i] -= f * x[k];
+            }
+        }
+        for (size_t i = un; i-- > 0;) {
+            Complex acc = x[i];
+            for (size_t j = i + 1; j < un; ++j)
+                if (a[i * un + j] != Complex(0)) acc -= a[i * un + j] * x[j];
+            x[i] = quotient(acc, a[i * un + i]);
+        }
+        const Complex v_in = in_r ? x[in_r - 1] : Complex(0);
+        const Complex v_out = out_r ? x[out_r - 1] : Complex(0);
+        *gain_out = quotient(v_out, v_in);
     }
 
     void eliminate_grounded_sources(const Netlist& nl) {
@@ -301,8 +568,9 @@ struct AcAnalysis::Impl {
     }
 };
 
-AcAnalysis::AcAnalysis(const Netlist& netlist, const OperatingPoint& op)
+AcAnalysis::AcAnalysis(const Netlist& netlist, const OperatingPoint& op, AcMethod method)
     : impl_(std::make_unique<Impl>()) {
+    impl_->method = method;
     impl_->build(netlist, op);
 }
 AcAnalysis::AcAnalysis(AcAnalysis&&) noexcept = default;
@@ -341,6 +609,7 @@ AcPoint AcAnalysis::point(double freq_hz) {
 
 std::complex<double> AcAnalysis::gain(double freq_hz) {
     Impl& d = *impl_;
+    if (d.method == AcMethod::direct) return d.direct_gain(freq_hz);
     if (!d.modal) return point(freq_hz).gain;
     // Both probes in one pass over the modes: 1/(1 + jωλ) = (a − jb)/(a² + b²) with
     // a = 1 − ω·Im λ, b = ω·Re λ, written out in real arithmetic.
@@ -357,6 +626,23 @@ std::complex<double> AcAnalysis::gain(double freq_hz) {
         out_im += co.real() * r_im + co.imag() * r_re;
     }
     return quotient(Complex(out_re, out_im), Complex(in_re, in_im));
+}
+
+void AcAnalysis::gains(std::span<const double> freq_hz, std::span<std::complex<double>> out) {
+    Impl& d = *impl_;
+    std::size_t i = 0;
+    if (d.method == AcMethod::direct) {
+        constexpr std::size_t lanes = Impl::kLanes;
+        for (; i + lanes <= freq_hz.size(); i += lanes) {
+            double w[lanes];
+            bool ok[lanes];
+            for (std::size_t l = 0; l < lanes; ++l) w[l] = 2 * std::numbers::pi * freq_hz[i + l];
+            d.fixed_gains(w, &out[i], ok);
+            for (std::size_t l = 0; l < lanes; ++l)
+                if (!ok[l]) d.pivoted_gain(w[l], &out[i + l]);
+        }
+    }
+    for (; i < freq_hz.size(); ++i) out[i] = gain(freq_hz[i]);
 }
 
 std::complex<double> AcAnalysis::output_impedance(double freq_hz) {

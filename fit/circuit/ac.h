@@ -4,6 +4,7 @@
 
 #include <complex>
 #include <memory>
+#include <span>
 #include <vector>
 
 #include "fit/circuit/dc.h"
@@ -19,9 +20,17 @@ struct AcPoint {
     std::complex<double> input_impedance;  // seen by the generator at the stimulus node
 };
 
+// How gain() solves each frequency. `fast`: Laub's Hessenberg or modal form, O(n) to O(n²) per
+// frequency after one O(n³) reduction of G⁻¹C per update. `direct`: a complex LU of the reduced
+// G + jωC at every frequency, with no reduction per update; exact to rounding even for a stiff
+// circuit whose time constants span ten decades, where the reduced forms keep only about seven
+// digits at the highest frequencies (their rounding is relative to the largest time constant).
+// A fit differentiating the response needs `direct`.
+enum class AcMethod { fast, direct };
+
 class AcAnalysis {
 public:
-    AcAnalysis(const Netlist& netlist, const OperatingPoint& op);
+    AcAnalysis(const Netlist& netlist, const OperatingPoint& op, AcMethod method = AcMethod::fast);
     AcAnalysis(AcAnalysis&&) noexcept;
     AcAnalysis& operator=(AcAnalysis&&) noexcept;
     ~AcAnalysis();
@@ -34,6 +43,9 @@ public:
     AcPoint point(double freq_hz);
     // The gain alone, the same as point(f).gain but cheaper.
     std::complex<double> gain(double freq_hz);
+    // gain() at every frequency of `freq_hz` into `out` (same size); the direct method solves
+    // four frequencies per pass.
+    void gains(std::span<const double> freq_hz, std::span<std::complex<double>> out);
     // Thevenin impedance at the out probe (generator EMF zeroed, its resistance kept).
     std::complex<double> output_impedance(double freq_hz);
     // Every MNA unknown (node voltages 1..N−1, then branch currents) for the generator drive.

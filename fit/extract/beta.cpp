@@ -4,6 +4,7 @@
 #include "fit/extract/beta.h"
 
 #include <cmath>
+#include <span>
 #include <vector>
 
 #include <fmt/format.h>
@@ -20,7 +21,7 @@ struct Beta {
     double beta0 = 0, hfe = 0, ic = 0, vce = 0;
 };
 
-Beta beta_at(fit::CircuitModel& model, const std::vector<double>& p, const std::string& ref) {
+Beta beta_at(fit::CircuitModel& model, std::span<const double> p, const std::string& ref) {
     Beta b;
     if (!model.set(p)) return b;
     for (const circuit::BjtOperatingPoint& t : model.operating_point().transistors)
@@ -72,7 +73,7 @@ EffectiveBeta effective_beta(const fit::CircuitFit& fit, const circuit::Design& 
         "To identify it: put a known series resistance (1 % or better, about the board's input resistance{}) "
         "between the generator and the board input and probe the generator side with the scope's 'in' channel, "
         "so the input divider depends on r_pi; or add DC readings of {}'s base and emitter from the meter, which fix "
-        "the base current through the bias network",
+        "the base current through the bias network when its resistors are known closely (0.1 % parts or measured values)",
         "{}", out.transistor);
     out.verdict = kBetaNotIdentifiable;
     if (p.size() != model.parameters().size() || fit.report.status == fit::FitStatus::diverged) {
@@ -103,33 +104,23 @@ EffectiveBeta effective_beta(const fit::CircuitFit& fit, const circuit::Design& 
     out.advice = fmt::format(fmt::runtime(ways), rin_hint);
 
     // Delta method in the working variables ln p of every fitted parameter.
-    const std::size_t nf = fit.report.free_index.size();
-    std::vector<double> g_beta(nf, 0.0), g_hfe(nf, 0.0);
-    const double h = 1e-4;
-    for (std::size_t k = 0; k < nf; ++k) {
-        const std::size_t j = fit.report.free_index[k];
-        std::vector<double> up = p, down = p;
-        up[j] *= std::exp(h);
-        down[j] *= std::exp(-h);
-        const Beta bu = beta_at(model, up, out.transistor), bd = beta_at(model, down, out.transistor);
-        if (!bu.ok || !bd.ok) continue;
-        g_beta[k] = (std::log(bu.beta0) - std::log(bd.beta0)) / (2 * h);
-        g_hfe[k] = (std::log(bu.hfe) - std::log(bd.hfe)) / (2 * h);
-    }
+    const std::vector<double> variance = fit::delta_method_variance(
+        [&](std::span<const double> q, std::span<double> v) {
+            const Beta b = beta_at(model, q, out.transistor);
+            if (!b.ok) return false;
+            v[0] = std::log(b.beta0);
+            v[1] = std::log(b.hfe);
+            return true;
+        },
+        2, p, fit.report.free_index, fit.report.working_covariance,
+        std::vector<bool>(fit.report.free_index.size(), true));
     model.set(p);
-    const std::vector<double>& cov = fit.report.working_covariance;
-    auto sd_of = [&](const std::vector<double>& g) -> double {
-        if (cov.size() != nf * nf) return INFINITY;
-        double v = 0;
-        for (std::size_t a = 0; a < nf; ++a)
-            for (std::size_t c = 0; c < nf; ++c) v += g[a] * cov[a * nf + c] * g[c];
-        return std::sqrt(std::max(v, 0.0));
-    };
+    auto sd_of = [&](std::size_t c) -> double { return variance.empty() ? INFINITY : std::sqrt(variance[c]); };
     const double t = fit.report.coverage_factor > 0 ? fit.report.coverage_factor : 1.959963984540054;
-    out.sd_ln = sd_of(g_beta);
+    out.sd_ln = sd_of(0);
     out.ci_low = out.beta0 * std::exp(-t * out.sd_ln);
     out.ci_high = out.beta0 * std::exp(t * out.sd_ln);
-    const double sd_hfe = sd_of(g_hfe);
+    const double sd_hfe = sd_of(1);
     out.hfe_ci_low = out.hfe * std::exp(-t * sd_hfe);
     out.hfe_ci_high = out.hfe * std::exp(t * sd_hfe);
 

@@ -106,6 +106,38 @@ double coverage_factor(double confidence, std::size_t dof) {
     return z + g1 / v + g2 / (v * v) + g3 / (v * v * v) + g4 / (v * v * v * v);
 }
 
+std::vector<double> delta_method_variance(const DeltaFunction& g, std::size_t outputs, std::span<const double> p,
+                                          std::span<const std::size_t> free_index,
+                                          std::span<const double> covariance, const std::vector<bool>& log_params,
+                                          double step) {
+    const std::size_t nf = free_index.size();
+    if (covariance.size() != nf * nf || log_params.size() != nf) return {};
+    std::vector<double> grad(nf * outputs, 0.0), up(outputs), down(outputs);
+    std::vector<double> q(p.begin(), p.end());
+    for (std::size_t k = 0; k < nf; ++k) {
+        const std::size_t j = free_index[k];
+        const double saved = q[j];
+        // Step in the working variable: ln p for a log parameter, p itself otherwise.
+        const double h = log_params[k] ? step : step * std::max(std::abs(saved), 1.0);
+        q[j] = log_params[k] ? saved * std::exp(step) : saved + h;
+        const bool ok_up = g(q, up);
+        q[j] = log_params[k] ? saved * std::exp(-step) : saved - h;
+        const bool ok_down = g(q, down);
+        q[j] = saved;
+        if (!ok_up || !ok_down) continue;
+        for (std::size_t c = 0; c < outputs; ++c) grad[k * outputs + c] = (up[c] - down[c]) / (2 * h);
+    }
+    std::vector<double> variance(outputs, 0.0);
+    for (std::size_t c = 0; c < outputs; ++c) {
+        double v = 0;
+        for (std::size_t a = 0; a < nf; ++a)
+            for (std::size_t b = 0; b < nf; ++b)
+                v += grad[a * outputs + c] * covariance[a * nf + b] * grad[b * outputs + c];
+        variance[c] = std::max(v, 0.0);
+    }
+    return variance;
+}
+
 namespace {
 
 // Maps the unconstrained variable u of the optimiser to the working variable w (ln p or p)

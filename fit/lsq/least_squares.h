@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstddef>
+#include <functional>
 #include <limits>
 #include <span>
 #include <string>
@@ -97,6 +98,19 @@ struct FitReport {
 
 FitReport least_squares(const ResidualModel& model, const std::vector<Parameter>& params,
                         const LsqOptions& options = {});
+
+// Delta method: the variance of each output of g(p) propagated from the covariance of the
+// fitted working variables. `free_index` names the varied entries of p in the order of
+// `covariance` (row-major, free × free); `log_params[k]` says free parameter k works in ln p
+// (as FitReport::working_covariance does for log-scale parameters). The gradient is a central
+// difference of step `step` in each working variable; a component whose g evaluation fails
+// (g returns false) counts as 0. Returns one variance per output, or an empty vector when the
+// covariance does not match free_index. `g` fills `outputs` values for the given p.
+using DeltaFunction = std::function<bool(std::span<const double> p, std::span<double> out)>;
+std::vector<double> delta_method_variance(const DeltaFunction& g, std::size_t outputs, std::span<const double> p,
+                                          std::span<const std::size_t> free_index,
+                                          std::span<const double> covariance, const std::vector<bool>& log_params,
+                                          double step = 1e-4);
 
 // Two-sided Student-t coverage factor for `confidence` with `dof` degrees of freedom
 // (the normal quantile for dof == 0, meaning known variance).

@@ -63,6 +63,14 @@ struct CircuitModel::Impl {
     std::vector<double> guess;
     std::optional<circuit::AcAnalysis> ac;
     circuit::DcOptions dc;
+    std::vector<double> key;  // the DC inputs of the netlist now
+    struct Cached {
+        bool valid = false;
+        std::vector<double> key;
+        circuit::OperatingPoint op;
+    };
+    std::array<Cached, 2> cache;
+    std::size_t next_slot = 0;
 
     int transistor_of(int part) const {
         for (std::size_t k = 0; k < nl.transistors.size(); ++k)
@@ -178,90 +186,137 @@ bool CircuitModel::set(std::span<const double> p) {
             default: break;
         }
     }
-    try {
-        m.op = circuit::solve_operating_point(m.nl, m.dc, m.guess.empty() ? nullptr : &m.guess);
-    } catch (const Error&) {
-        try {
-            m.op = circuit::solve_operating_point(m.nl, m.dc);
-        } catch (const Error&) {
-            return false;
+    // The operating point depends on the resistors, the sources and the transistors' DC
+    // parameters only: when none of them moved since the last solve (a capacitor, TF or a
+    // junction capacitance did), keep it and re-evaluate only the charges at the same bias.
+    m.key.clear();
+    for (const auto& r : m.nl.resistors) m.key.push_back(r.ohms);
+    for (const auto& v : m.nl.vsources) m.key.push_back(v.volts);
+    for (const auto& i : m.nl.isources) m.key.push_back(i.amps);
+    for (const auto& t : m.nl.transistors)
+        m.key.insert(m.key.end(), {t.params.bf, t.params.is_a, t.params.rb_ohm, t.params.vaf_v, t.params.br, t.params.nf});
+    Impl::Cached* hit = nullptr;
+    for (Impl::Cached& c : m.cache)
+        if (c.valid && c.key == m.key) hit = &c;
+    if (hit) {
+        m.op = hit->op;
+        for (std::size_t k = 0; k < m.nl.transistors.size(); ++k) {
+            circuit::BjtOperatingPoint& t = m.op.transistors[k];
+            t.eval = circuit::evaluate_bjt(m.nl.transistors[k].params, t.vbe_internal, t.vbc_internal, m.nl.vt);
         }
+    } else {
+        try {
+            m.op = circuit::solve_operating_point(m.nl, m.dc, m.guess.empty() ? nullptr : &m.guess);
+        } catch (const Error&) {
+            try {
+                m.op = circuit::solve_operating_point(m.nl, m.dc);
+            } catch (const Error&) {
+                return false;
+            }
+        }
+        // Keep the two latest solutions: a finite-difference step of a capacitor then finds
+        // the operating point of the base point even after a resistor's step moved it.
+        Impl::Cached& slot = m.cache[m.next_slot];
+        m.next_slot = 1 - m.next_slot;
+        slot.valid = true;
+        slot.key = m.key;
+        slot.op = m.op;
     }
     m.guess = m.op.x;
     if (m.ac)
         m.ac->update(m.nl, m.op);
     else
-        m.ac.emplace(m.nl, m.op);
+        m.ac.emplace(m.nl, m.op, circuit::AcMethod::direct);
     return true;
 }
 
 std::complex<double> CircuitModel::gain(double freq_hz) { return impl_->ac->gain(freq_hz); }
+void CircuitModel::gains(std::span<const double> freq_hz, std::span<std::complex<double>> out) {
+    impl_->ac->gains(freq_hz, out);
+}
 const circuit::OperatingPoint& CircuitModel::operating_point() const { return impl_->op; }
 const circuit::Netlist& CircuitModel::netlist() const { return impl_->nl; }
 
 namespace {
 
-// Data rows (dB, then wrapped phase) and one prior row per nuisance parameter.
+// Data rows (dB, then wrapped phase), one prior row per nuisance parameter, then one row per
+// DC reading.
 class CircuitResiduals : public ResidualModel {
 public:
-    CircuitResiduals(CircuitModel& model, const GainData& data, double sd_db, double sd_deg, bool priors)
-        : model_(model), data_(data), priors_(priors) {
+    CircuitResiduals(CircuitModel& model, const GainData& data, double sd_db, double sd_deg, bool priors,
+                     const std::vector<int>& dc_nodes, const std::vector<DcReading>& dc)
+        : model_(model), data_(data), priors_(priors), dc_nodes_(dc_nodes), dc_(dc) {
         for (const GainPoint& pt : data.points) {
+            freqs_.push_back(pt.freq_hz);
             sd_db_.push_back(data.has_sd ? pt.gain_db_sd : sd_db);
             sd_deg_.push_back(data.has_sd && data.has_phase ? pt.phase_deg_sd : sd_deg);
         }
+        h_.resize(freqs_.size());
         for (const CircuitParameter& p : model.parameters())
-            if (!p.free && priors_) prior_.push_back(p);
+            if (!p.free && priors_) ++prior_count_;
     }
     std::size_t data_rows() const { return data_.points.size() * (data_.has_phase ? 2 : 1); }
-    std::size_t residual_count() const override { return data_rows() + prior_.size(); }
+    std::size_t residual_count() const override { return data_rows() + prior_count_ + dc_.size(); }
 
-    void residuals(std::span<const double> p, std::span<double> r) const override {
+    void residuals(std::span<const double> p, std::span<double> r) const override { evaluate(p, r); }
+
+    // Central differences in ln p. The model is smooth to rounding (a Newton-converged DC
+    // point, a direct complex solve per frequency), so h = 1e-5 leaves truncation and round-off
+    // both near 1e-10 relative.
+    bool jacobian(std::span<const double> p, std::span<double> jac) const override {
+        const std::size_t m = residual_count(), n = p.size();
+        up_.resize(m);
+        down_.resize(m);
+        std::vector<double> q(p.begin(), p.end());
+        const double h = 1e-5;
+        for (std::size_t j = 0; j < n; ++j) {
+            q[j] = p[j] * std::exp(h);
+            evaluate(q, up_);
+            q[j] = p[j] * std::exp(-h);
+            evaluate(q, down_);
+            q[j] = p[j];
+            for (std::size_t i = 0; i < m; ++i) jac[i * n + j] = (up_[i] - down_[i]) / (2 * h * p[j]);
+        }
+        // Leave the model at p (gain() and operating_point() answer for the last set()).
+        model_.set(p);
+        return true;
+    }
+
+private:
+    void evaluate(std::span<const double> p, std::span<double> r) const {
         const std::size_t n = data_.points.size();
         if (!model_.set(p)) {
             std::fill(r.begin(), r.end(), std::numeric_limits<double>::quiet_NaN());
             return;
         }
+        model_.gains(freqs_, h_);
         for (std::size_t i = 0; i < n; ++i) {
             const GainPoint& pt = data_.points[i];
-            const std::complex<double> h = model_.gain(pt.freq_hz);
+            const std::complex<double> h = h_[i];
             const double mag = std::sqrt(h.real() * h.real() + h.imag() * h.imag());
             r[i] = (20.0 * std::log10(mag) - pt.gain_db) / sd_db_[i];
-            if (data_.has_phase) r[n + i] = wrap_deg(std::arg(h) * deg_per_rad - pt.phase_deg) / sd_deg_[i];
+            if (data_.has_phase) r[n + i] = wrap_deg(std::atan2(h.imag(), h.real()) * deg_per_rad - pt.phase_deg) / sd_deg_[i];
         }
         std::size_t row = data_rows();
-        std::size_t k = 0;
-        for (std::size_t j = 0; j < model_.parameters().size(); ++j) {
+        for (std::size_t j = 0; j < model_.parameters().size() && priors_; ++j) {
             const CircuitParameter& par = model_.parameters()[j];
-            if (par.free || !priors_) continue;
-            r[row + k] = (std::log(p[j]) - std::log(par.nominal)) / par.prior_sd_ln;
-            ++k;
+            if (par.free) continue;
+            r[row++] = (std::log(p[j]) - std::log(par.nominal)) / par.prior_sd_ln;
         }
+        const std::vector<double>& volts = model_.operating_point().node_volts;
+        for (std::size_t k = 0; k < dc_.size(); ++k)
+            r[row++] = (volts[static_cast<std::size_t>(dc_nodes_[k])] - dc_[k].volts) / dc_[k].sd_volts;
     }
 
-    // Central differences in ln p with a step well above the DC solve's tolerance.
-    bool jacobian(std::span<const double> p, std::span<double> jac) const override {
-        const std::size_t m = residual_count(), n = p.size();
-        std::vector<double> q(p.begin(), p.end()), up(m), down(m);
-        const double h = 1e-5;
-        for (std::size_t j = 0; j < n; ++j) {
-            q[j] = p[j] * std::exp(h);
-            residuals(q, up);
-            q[j] = p[j] * std::exp(-h);
-            residuals(q, down);
-            q[j] = p[j];
-            for (std::size_t i = 0; i < m; ++i) jac[i * n + j] = (up[i] - down[i]) / (2 * h * p[j]);
-        }
-        residuals(p, up);  // leave the model at p
-        return true;
-    }
-
-private:
     CircuitModel& model_;
     const GainData& data_;
     bool priors_;
-    std::vector<double> sd_db_, sd_deg_;
-    std::vector<CircuitParameter> prior_;
+    std::vector<int> dc_nodes_;
+    std::vector<DcReading> dc_;
+    std::vector<double> sd_db_, sd_deg_, freqs_;
+    mutable std::vector<std::complex<double>> h_;
+    std::size_t prior_count_ = 0;
+    mutable std::vector<double> up_, down_;
 };
 
 struct Quantities {
@@ -294,31 +349,18 @@ void fill_derived(CircuitFit& fit, CircuitModel& model) {
     const std::vector<double> p = fit.report.values();
     const Quantities q0 = quantities(model, p, fit.f_min_hz, fit.f_max_hz);
     if (!q0.ok) return;
-    const std::size_t nf = fit.report.free_index.size();
-    auto vec = [](const Quantities& q) {
-        return std::array<double, 5>{q.peak_db, q.ln_low, q.ln_high, q.ln_mid, q.peaking_db};
-    };
-    std::vector<std::array<double, 5>> grad(nf);
-    const double h = 1e-4;
-    for (std::size_t k = 0; k < nf; ++k) {
-        const std::size_t j = fit.report.free_index[k];
-        std::vector<double> up = p, down = p;
-        up[j] *= std::exp(h);
-        down[j] *= std::exp(-h);
-        const Quantities qu = quantities(model, up, fit.f_min_hz, fit.f_max_hz);
-        const Quantities qd = quantities(model, down, fit.f_min_hz, fit.f_max_hz);
-        const auto a = vec(qu), b = vec(qd);
-        for (std::size_t c = 0; c < 5; ++c) grad[k][c] = (qu.ok && qd.ok) ? (a[c] - b[c]) / (2 * h) : 0.0;
-    }
+    // Delta method over every fitted parameter, in ln p (all circuit parameters are log-scale).
+    const std::vector<double> variance = delta_method_variance(
+        [&](std::span<const double> q, std::span<double> out) {
+            const Quantities qq = quantities(model, q, fit.f_min_hz, fit.f_max_hz);
+            const std::array<double, 5> v{qq.peak_db, qq.ln_low, qq.ln_high, qq.ln_mid, qq.peaking_db};
+            std::copy(v.begin(), v.end(), out.begin());
+            return qq.ok;
+        },
+        5, p, fit.report.free_index, fit.report.working_covariance,
+        std::vector<bool>(fit.report.free_index.size(), true));
     model.set(p);
-    const std::vector<double>& cov = fit.report.working_covariance;
-    auto sd_of = [&](std::size_t c) {
-        if (cov.size() != nf * nf) return 0.0;
-        double v = 0;
-        for (std::size_t a = 0; a < nf; ++a)
-            for (std::size_t b = 0; b < nf; ++b) v += grad[a][c] * cov[a * nf + b] * grad[b][c];
-        return std::sqrt(std::max(v, 0.0));
-    };
+    auto sd_of = [&](std::size_t c) { return variance.empty() ? 0.0 : std::sqrt(variance[c]); };
     const double t = fit.report.coverage_factor;
     auto linear = [&](double value, std::size_t c) {
         const double sd = sd_of(c);
@@ -360,6 +402,8 @@ CircuitFit fit_circuit(const circuit::Design& design, const circuit::BenchLoadin
                        const CircuitFitOptions& options) {
     if (!(options.confidence > 0 && options.confidence < 1))
         throw FitInputError("circuit fit: confidence must lie in (0, 1)");
+    if (!(options.tolerance >= 1e-15 && options.tolerance < 1))
+        throw FitInputError("circuit fit: tolerance must lie in [1e-15, 1)");
     const GainData data = prepare_gain_data(raw);
     std::vector<std::string> free = options.free;
     if (free.empty()) {
@@ -373,7 +417,18 @@ CircuitFit fit_circuit(const circuit::Design& design, const circuit::BenchLoadin
     }
     CircuitModel model(design, bench, free);
     const std::string origin = data.origin.empty() ? "gain points" : data.origin;
-    const std::size_t rows = data.points.size() * (data.has_phase ? 2 : 1);
+    // DC readings: each names a node of the design and carries a positive uncertainty.
+    std::vector<int> dc_nodes;
+    for (const DcReading& d : options.dc_readings) {
+        const int node = model.netlist().node_index(d.node);
+        if (node < 0 || d.node.find('#') != std::string::npos)
+            throw InputError(design.path, "dc_readings", fmt::format("no node '{}' in the design for a DC reading", d.node));
+        if (!std::isfinite(d.volts) || !(d.sd_volts > 0) || !std::isfinite(d.sd_volts))
+            throw InputError(design.path, "dc_readings",
+                             fmt::format("the DC reading of node '{}' needs a finite value and a positive uncertainty", d.node));
+        dc_nodes.push_back(node);
+    }
+    const std::size_t rows = data.points.size() * (data.has_phase ? 2 : 1) + options.dc_readings.size();
     if (rows <= free.size())
         throw FitInputError(fmt::format("{}: {} points cannot determine the {} free circuit parameters", origin,
                                         data.points.size(), free.size()));
@@ -395,18 +450,18 @@ CircuitFit fit_circuit(const circuit::Design& design, const circuit::BenchLoadin
     opt.confidence = options.confidence;
     opt.scale_covariance = false;
     opt.max_evaluations = 400;
-    // The model carries the DC solve's round-off (about 1e-12 relative): ask no more of LM.
-    opt.ftol = 1e-10;
-    opt.xtol = 1e-10;
+    opt.ftol = options.tolerance;
+    opt.xtol = options.tolerance;
     double sd_db = 1.0, sd_deg = 1.0;
     if (!data.has_sd) {
         // Without sds: a first fit of the free parameters alone with unit weights; its residual
         // spread per kind (dB, degrees) becomes the data sd, so the priors weigh correctly.
-        const CircuitResiduals first(model, data, 1.0, 1.0, false);
+        const CircuitResiduals first(model, data, 1.0, 1.0, false, {}, {});
         const FitReport r0 = least_squares(first, lsq_parameters(model, start, false), opt);
         if (r0.status != FitStatus::diverged) {
             const std::size_t n = data.points.size();
-            const double dof_share = static_cast<double>(rows - free.size()) / static_cast<double>(rows);
+            const std::size_t ac_rows = rows - options.dc_readings.size();
+            const double dof_share = static_cast<double>(ac_rows - std::min(ac_rows - 1, free.size())) / static_cast<double>(ac_rows);
             double s_db = 0, s_deg = 0;
             for (std::size_t i = 0; i < n; ++i) s_db += r0.residuals[i] * r0.residuals[i];
             if (data.has_phase)
@@ -421,22 +476,30 @@ CircuitFit fit_circuit(const circuit::Design& design, const circuit::BenchLoadin
                                     : fmt::format("no standard deviations given: {:.3g} dB estimated from the residuals", sd_db));
         }
     }
-    const CircuitResiduals residuals(model, data, sd_db, sd_deg, true);
+    const CircuitResiduals residuals(model, data, sd_db, sd_deg, true, dc_nodes, options.dc_readings);
     fit.report = least_squares(residuals, lsq_parameters(model, start, true), opt);
-    // χ² of the data rows only: the prior rows are not observations.
+    // χ² of the observations only (gain points and DC readings): the prior rows are not.
     fit.report.observations = rows;
     fit.report.dof = rows > free.size() ? rows - free.size() : 0;
     {
+        const std::size_t ac_rows = rows - options.dc_readings.size();
+        const std::size_t dc_first = residuals.residual_count() - options.dc_readings.size();
         double chi2 = 0;
-        for (std::size_t i = 0; i < rows && i < fit.report.residuals.size(); ++i) chi2 += fit.report.residuals[i] * fit.report.residuals[i];
+        for (std::size_t i = 0; i < fit.report.residuals.size(); ++i)
+            if (i < ac_rows || i >= dc_first) chi2 += fit.report.residuals[i] * fit.report.residuals[i];
         if (fit.report.dof > 0) fit.report.chi2_reduced = chi2 / static_cast<double>(fit.report.dof);
     }
+    fit.dc_readings = options.dc_readings;
+    if (fit.report.status != FitStatus::diverged && model.set(fit.report.values()))
+        for (const int node : dc_nodes) fit.dc_model_volts.push_back(model.operating_point().node_volts[static_cast<std::size_t>(node)]);
+    if (!options.dc_readings.empty())
+        fit.notes.push_back(fmt::format("{} DC readings of node voltages enter as residual rows", options.dc_readings.size()));
     std::size_t nuisance = 0;
     for (const CircuitParameter& p : fit.parameters) nuisance += p.free ? 0 : 1;
     fit.notes.insert(fit.notes.begin(),
                      fmt::format("circuit model of {} with {} free ({}) and {} tolerance priors", design.name,
                                  free.size(), fmt::join(free, ", "), nuisance));
-    if (fit.report.status != FitStatus::diverged) fill_derived(fit, model);
+    if (fit.report.status != FitStatus::diverged && options.derived) fill_derived(fit, model);
     return fit;
 }
 

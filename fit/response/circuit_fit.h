@@ -48,6 +48,8 @@ public:
     bool set(std::span<const double> p);
     // After a successful set(): V(out)/V(in), and the operating point.
     std::complex<double> gain(double freq_hz);
+    // gain() at every frequency, in one pass.
+    void gains(std::span<const double> freq_hz, std::span<std::complex<double>> out);
     const circuit::OperatingPoint& operating_point() const;
     const circuit::Netlist& netlist() const;
 
@@ -56,9 +58,24 @@ private:
     std::unique_ptr<Impl> impl_;
 };
 
+// A DC meter reading of a node's voltage against ground, with its standard uncertainty.
+struct DcReading {
+    std::string node;  // a node of the design ("b", "e", "c")
+    double volts = 0.0;
+    double sd_volts = 0.0;
+};
+
 struct CircuitFitOptions {
     std::vector<std::string> free;  // empty: the first transistor's beta
+    // Each reading adds a residual row (V_model − volts)/sd against the model's DC operating
+    // point, so the bias network's readings constrain what the AC data cannot (beta).
+    std::vector<DcReading> dc_readings;
     double confidence = 0.95;
+    // LM's ftol and xtol: the relative reduction of the sum of squares and the relative step
+    // below which it stops.
+    double tolerance = 1e-10;
+    // false: the fit alone, without the derived quantities and their delta-method intervals.
+    bool derived = true;
 };
 
 struct CircuitFit {
@@ -70,6 +87,8 @@ struct CircuitFit {
     std::optional<double> estimated_sd_db, estimated_sd_deg;
     DerivedValue midband_gain_db, f_low_hz, f_high_hz, midband_freq_hz, peaking_db;
     std::optional<bool> inverting;
+    std::vector<DcReading> dc_readings;  // the readings used, as given
+    std::vector<double> dc_model_volts;  // the fitted model's voltage at each reading's node
     std::vector<std::string> notes;
 
     bool usable() const { return report.usable(); }

@@ -63,14 +63,18 @@ def main():
         return np.concatenate([r_mag, r_ph])
 
     repeats = int(prob.get("repeats", 1))
-    t0 = time.perf_counter()
+    times = []
     for _ in range(repeats):
+        t0 = time.perf_counter()
         res = least_squares(residuals, x0, method="lm", xtol=1e-15, ftol=1e-15, gtol=1e-15,
                             x_scale="jac", max_nfev=100000)
-    elapsed = (time.perf_counter() - t0) / repeats
+        times.append(time.perf_counter() - t0)
+    elapsed = sum(times) / repeats
+    fastest = min(times)
     params = [float(res.x[0])] + [float(v) for v in np.exp(res.x[1:])]
     print(json.dumps({"params": params, "cost": float(2 * res.cost), "status": int(res.status),
-                      "nfev": int(res.nfev), "fit_seconds": elapsed}))
+                      "nfev": int(res.nfev), "fit_seconds": elapsed,
+                      "fit_seconds_min": fastest}))
 
 
 if __name__ == "__main__":

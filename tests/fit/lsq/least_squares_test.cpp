@@ -348,3 +348,49 @@ TEST_CASE("coverage factors match Student-t tables", "[lsq]") {
     CHECK(coverage_factor(0.95, 0) == Approx(1.95996).epsilon(1e-5));
     CHECK(normal_quantile(0.975) == Approx(1.959963985).epsilon(1e-9));
 }
+
+TEST_CASE("delta-method variance matches the closed form gᵀ·C·g", "[lsq][delta]") {
+    // Closed form (first-order propagation, exact here): for ln f = a·ln p0 + b·ln p1 with the
+    // covariance C of (ln p0, ln p1), var(ln f) = a²C00 + 2ab·C01 + b²C11; for the quadratic
+    // q = 3·p0 + p0² − 2·p2 on the linear scale the central difference is exact, gradient (3 + 2·p0, −2).
+    const std::vector<double> p = {2.5, 40.0, 7.0};
+    const std::vector<std::size_t> free_index = {0, 1};
+    const std::vector<double> cov_log = {0.04, -0.006, -0.006, 0.0009};
+    const double a = 1.5, b = -0.5;
+    const std::vector<double> v = delta_method_variance(
+        [&](std::span<const double> q, std::span<double> out) {
+            out[0] = std::log(std::pow(q[0], a) * std::pow(q[1], b));
+            out[1] = q[2];  // does not depend on the free parameters
+            return true;
+        },
+        2, p, free_index, cov_log, {true, true});
+    REQUIRE(v.size() == 2);
+    CHECK(v[0] == Approx(a * a * 0.04 + 2 * a * b * -0.006 + b * b * 0.0009).epsilon(1e-7));
+    CHECK(v[1] == 0.0);
+
+    const std::vector<std::size_t> free_02 = {0, 2};
+    const std::vector<double> cov_lin = {0.01, 0.002, 0.002, 0.25};
+    const std::vector<double> w = delta_method_variance(
+        [](std::span<const double> q, std::span<double> out) {
+            out[0] = 3 * q[0] + q[0] * q[0] - 2 * q[2];
+            return true;
+        },
+        1, p, free_02, cov_lin, {false, false});
+    const double g0 = 3 + 2 * p[0], g1 = -2;
+    REQUIRE(w.size() == 1);
+    CHECK(w[0] == Approx(g0 * g0 * 0.01 + 2 * g0 * g1 * 0.002 + g1 * g1 * 0.25).epsilon(1e-7));
+
+    // A failed evaluation drops that parameter's component; a covariance of the wrong size
+    // gives no answer.
+    const std::vector<double> skip = delta_method_variance(
+        [&](std::span<const double> q, std::span<double> out) {
+            out[0] = std::log(q[0]) + std::log(q[1]);
+            return q[1] == p[1];  // fails whenever p1 is stepped
+        },
+        1, p, free_index, cov_log, {true, true});
+    REQUIRE(skip.size() == 1);
+    CHECK(skip[0] == Approx(0.04).epsilon(1e-7));
+    CHECK(delta_method_variance([](std::span<const double>, std::span<double>) { return true; }, 1, p, free_index,
+                                std::vector<double>{0.1, 0.2}, {true, true})
+              .empty());
+}
