@@ -405,7 +405,7 @@ struct SqliteArchive::Impl {
         refuse_newer(version);
         for (const auto& m : migrations()) {
             if (m.version <= version) continue;
-            db->exec(m.sql);
+            db->exec(m.sqlite);
             auto& st = query("INSERT INTO schema_version(version, applied_utc) VALUES (?, ?)");
             st.bind(1, m.version);
             st.bind(2, utc_iso(now()));
@@ -1118,19 +1118,6 @@ SessionDetail SqliteArchive::session_detail(std::int64_t session_id) {
         d.fits = fits(session_id);
         return d;
     });
-}
-
-std::unique_ptr<Archive> open_archive(const std::string& location, const ArchiveOptions& options) {
-    std::string path = location;
-    if (path.rfind("sqlite:", 0) == 0) {
-        path = path.substr(7);
-        if (path.rfind("//", 0) == 0) path = path.substr(2);
-    } else if (const auto colon = path.find("://"); colon != std::string::npos) {
-        throw StoreError(fmt::format("archive {}: the '{}' backend is not available in this build",
-                                     location, path.substr(0, colon)));
-    }
-    if (path.empty()) throw StoreError("archive: empty path");
-    return std::make_unique<SqliteArchive>(path, options);
 }
 
 }  // namespace ampbench::store
