@@ -125,7 +125,7 @@ public:
     }
 
 private:
-    const pqxx::row& row_;
+    pqxx::row row_;  // a copy: r[0] is a temporary
     pqxx::row::size_type at_;
 };
 

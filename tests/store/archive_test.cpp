@@ -315,8 +315,8 @@ TEST_CASE("designs are content-addressed and boards refer to them", "[store]") {
     CHECK(d1.address == content_address(d1.canonical_json, "x"));
     CHECK(d1.name == "HVE-SB3 sensor buffer");
     CHECK(archive->design(d1.address)->canonical_json == R"({"a":"x","b":[1,2],"name":"HVE-SB3 sensor buffer"})");
-    const Board b = archive->ensure_board("SB3-2611-0007", d1.address, "rework: C2 replaced");
-    CHECK(b.design_address == d1.address);
+    const Board board_made = archive->ensure_board("SB3-2611-0007", d1.address, "rework: C2 replaced");
+    CHECK(board_made.design_address == d1.address);
     CHECK(archive->board("SB3-2611-0007")->notes == "rework: C2 replaced");
     CHECK_THROWS_WITH(archive->ensure_board("SB3-2611-0008", std::string(64, 'f')),
                       Catch::Contains("not in the archive"));
