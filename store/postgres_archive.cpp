@@ -8,24 +8,20 @@
 
 #include <algorithm>
 #include <array>
-#include <cerrno>
 #include <chrono>
 #include <climits>
 #include <cmath>
-#include <csignal>
 #include <cstdlib>
-#include <ctime>
 #include <map>
 #include <set>
 #include <unordered_map>
 
 #include <fmt/format.h>
-#include <nlohmann/json.hpp>
 #include <pqxx/pqxx>
 
 #include "core/errors.h"
 #include "core/version.h"
-#include "store/canonical_json.h"
+#include "store/archive_util.h"
 #include "store/schema.h"
 #include "store/uuid.h"
 
@@ -43,27 +39,6 @@ constexpr std::int64_t migration_lock_key = 0x616d706d;
 constexpr const char* our_tables =
     "ARRAY['designs', 'boards', 'sessions', 'instruments', 'probes', 'plan_points', 'points', "
     "'fits', 'lots', 'devices']";
-
-std::string utc_text(double unix_s) {
-    const auto seconds = static_cast<std::time_t>(std::floor(unix_s));
-    std::tm tm{};
-    gmtime_r(&seconds, &tm);
-    std::array<char, 32> text{};
-    std::strftime(text.data(), text.size(), "%Y-%m-%dT%H:%M:%SZ", &tm);
-    return text.data();
-}
-
-std::string host_name() {
-    std::array<char, 256> name{};
-    if (gethostname(name.data(), name.size() - 1) != 0) return "unknown-host";
-    return name.data();
-}
-
-bool process_alive(std::int64_t pid) {
-    if (pid <= 0) return false;
-    if (::kill(static_cast<pid_t>(pid), 0) == 0) return true;
-    return errno == EPERM;
-}
 
 // --- Parameters: every value travels as text (or NULL) in its own slot. ---
 using Param = std::optional<std::string>;
@@ -461,7 +436,7 @@ struct PostgresArchive::Impl {
                 if (m.version <= version) continue;
                 t.exec(m.postgres);
                 run(t, "INSERT INTO schema_version(version, applied_utc) VALUES ($1, $2)",
-                    m.version, utc_text(now()));
+                    m.version, utc_iso(now()));
             }
         } catch (const pqxx::insufficient_privilege&) {
             t.abort();
@@ -474,8 +449,8 @@ struct PostgresArchive::Impl {
 
     bool is_stale(const std::string& session_host, std::int64_t session_pid,
                   double heartbeat_s) const {
-        return heartbeat_s < now() - options.stale_after_s && session_host == host &&
-               !process_alive(session_pid);
+        return stale_session(host, session_host, session_pid, heartbeat_s, now(),
+                             options.stale_after_s);
     }
 
     // Whether a connection other than this one holds the session's advisory lock.
@@ -576,7 +551,7 @@ struct PostgresArchive::Impl {
         const auto inserted = run(t,
                                   "INSERT INTO boards(serial, design_address, notes, created_utc) "
                                   "VALUES ($1, $2, $3, $4) ON CONFLICT (serial) DO NOTHING",
-                                  serial, text_or_null(design_address), notes, utc_text(now()));
+                                  serial, text_or_null(design_address), notes, utc_iso(now()));
         if (inserted.affected_rows() == 0) {
             if (!design_address.empty())
                 run(t, "UPDATE boards SET design_address = $1 WHERE serial = $2", design_address,
@@ -748,7 +723,7 @@ struct PostgresArchive::Impl {
         Point p = in;
         p.superseded_by.reset();
         p.uuid = make_uuid_v4();
-        if (p.taken_utc.empty()) p.taken_utc = utc_text(now());
+        if (p.taken_utc.empty()) p.taken_utc = utc_iso(now());
         p.sequence = next_sequence(t, session_id);
         p.id = next_id(t, "points");
         if (p.plan_index) {
@@ -795,7 +770,7 @@ struct PostgresArchive::Impl {
                            "operator, host, pid, heartbeat_unix_s, bench_file, software_version, "
                            "notes) VALUES ($1, $2, $3, 'running', $4, $5, $6, $7, $8, $9, $10, "
                            "$11) RETURNING id",
-                           make_uuid_v4(), b.id, to_string(in.kind), utc_text(now_s),
+                           make_uuid_v4(), b.id, to_string(in.kind), utc_iso(now_s),
                            in.operator_name, host, pid, now_s, in.bench_file, software_version(),
                            in.notes);
         const std::int64_t id = Cols(r[0]).i64();
@@ -826,7 +801,7 @@ struct PostgresArchive::Impl {
             "archive {}: session {} is held by station {} (pid {}) since {}, last heartbeat {}; "
             "it can be resumed once that process has stopped",
             url, s.id, s.host.empty() ? std::string("unknown") : s.host, s.pid, s.started_utc,
-            utc_text(s.heartbeat_unix_s));
+            utc_iso(s.heartbeat_unix_s));
     }
 
     CopyCounts copy_session(pqxx::transaction_base& t, const SessionDetail& d);
@@ -838,7 +813,7 @@ PostgresArchive::PostgresArchive(const std::string& url, const ArchiveOptions& o
     : impl_(std::make_unique<Impl>()) {
     impl_->url = url;
     impl_->options = options;
-    impl_->host = options.host.empty() ? host_name() : options.host;
+    impl_->host = options.host.empty() ? this_host() : options.host;
     impl_->pid = options.pid > 0 ? options.pid : static_cast<std::int64_t>(::getpid());
     impl_->guarded([&] {
         impl_->connect();
@@ -857,20 +832,13 @@ int PostgresArchive::schema_version() const { return impl_->version; }
 
 DesignRecord PostgresArchive::put_design(const std::string& design_json,
                                          const std::string& origin) {
-    DesignRecord d;
-    d.canonical_json = canonical_json(design_json, origin);
-    d.address = content_address(d.canonical_json, origin);
-    {
-        const auto parsed = nlohmann::json::parse(d.canonical_json);
-        if (parsed.is_object() && parsed.contains("name") && parsed["name"].is_string())
-            d.name = parsed["name"].get<std::string>();
-    }
+    const DesignRecord d = canonical_design(design_json, origin);
     return impl_->guarded([&] {
         pqxx::work t(*impl_->conn);
         impl_->run(t,
                    "INSERT INTO designs(address, name, canonical_json, created_utc) "
                    "VALUES ($1, $2, $3, $4) ON CONFLICT (address) DO NOTHING",
-                   d.address, d.name, d.canonical_json, utc_text(impl_->now()));
+                   d.address, d.name, d.canonical_json, utc_iso(impl_->now()));
         t.commit();
         return *design(d.address);
     });
@@ -998,7 +966,7 @@ void PostgresArchive::finish_session(std::int64_t session_id, SessionStatus stat
         const auto r = impl_->run(t,
                                   "UPDATE sessions SET status = $1, finished_utc = $2, "
                                   "heartbeat_unix_s = $3 WHERE id = $4",
-                                  to_string(status), utc_text(now), now, session_id);
+                                  to_string(status), utc_iso(now), now, session_id);
         if (r.affected_rows() != 1)
             throw StoreError(fmt::format("archive {}: no session {}", impl_->url, session_id));
         t.commit();
@@ -1059,7 +1027,7 @@ void PostgresArchive::add_plan_points(std::int64_t session_id,
     impl_->guarded([&] {
         pqxx::work t(*impl_->conn);
         impl_->require_running(t, session_id);
-        const std::string now = utc_text(impl_->now());
+        const std::string now = utc_iso(impl_->now());
         for (const auto& p : plan)
             impl_->run(t,
                        "INSERT INTO plan_points(session_id, plan_index, freq_hz, adaptive, "
@@ -1114,7 +1082,7 @@ FitRecord PostgresArchive::add_fit(const FitRecord& fit) {
         impl_->require_session(t, fit.session_id);
         FitRecord f = fit;
         f.uuid = make_uuid_v4();
-        f.created_utc = utc_text(impl_->now());
+        f.created_utc = utc_iso(impl_->now());
         const auto r = impl_->run(t,
                                   "INSERT INTO fits(uuid, session_id, kind, model, params_json, "
                                   "report_json, midband_gain_db, f_low_hz, f_high_hz, "
@@ -1141,7 +1109,7 @@ Lot PostgresArchive::add_lot(const Lot& lot) {
         pqxx::work t(*impl_->conn);
         Lot l = lot;
         l.uuid = make_uuid_v4();
-        l.created_utc = utc_text(impl_->now());
+        l.created_utc = utc_iso(impl_->now());
         const auto r = impl_->run(t,
                                   "INSERT INTO lots(uuid, lot_code, plan_json, quantity, "
                                   "supplier, status, session_id, created_utc) "
@@ -1303,7 +1271,7 @@ CopyCounts PostgresArchive::Impl::copy_session(pqxx::transaction_base& t, const 
         n.instruments = static_cast<std::int64_t>(d.instruments.size());
         n.probes = static_cast<std::int64_t>(d.probes.size());
     }
-    const std::string now_text = utc_text(now());
+    const std::string now_text = utc_iso(now());
     for (const auto& p : d.plan)
         n.plan_points += static_cast<std::int64_t>(
             run(t,

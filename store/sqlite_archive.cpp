@@ -22,6 +22,7 @@
 
 #include "core/errors.h"
 #include "core/version.h"
+#include "store/archive_util.h"
 #include "store/canonical_json.h"
 #include "store/schema.h"
 #include "store/uuid.h"
@@ -29,28 +30,6 @@
 namespace ampbench::store {
 
 namespace {
-
-std::string utc_iso(double unix_s) {
-    const auto seconds = static_cast<std::time_t>(std::floor(unix_s));
-    std::tm tm{};
-    gmtime_r(&seconds, &tm);
-    std::array<char, 32> text{};
-    std::strftime(text.data(), text.size(), "%Y-%m-%dT%H:%M:%SZ", &tm);
-    return text.data();
-}
-
-std::string this_host() {
-    std::array<char, 256> name{};
-    if (gethostname(name.data(), name.size() - 1) != 0) return "unknown-host";
-    return name.data();
-}
-
-// A pid is alive when signal 0 can be sent to it (EPERM: it exists but is not ours).
-bool pid_alive(std::int64_t pid) {
-    if (pid <= 0) return false;
-    if (::kill(static_cast<pid_t>(pid), 0) == 0) return true;
-    return errno == EPERM;
-}
 
 void bind_optional(SQLite::Statement& st, int index, const std::optional<double>& value) {
     if (value)
@@ -417,8 +396,8 @@ struct SqliteArchive::Impl {
 
     bool is_stale(const std::string& session_host, std::int64_t session_pid,
                   double heartbeat_s) const {
-        return heartbeat_s < now() - options.stale_after_s && session_host == host &&
-               !pid_alive(session_pid);
+        return stale_session(host, session_host, session_pid, heartbeat_s, now(),
+                             options.stale_after_s);
     }
 
     int mark_stale() {
@@ -702,14 +681,7 @@ const std::string& SqliteArchive::location() const { return impl_->path; }
 int SqliteArchive::schema_version() const { return impl_->version; }
 
 DesignRecord SqliteArchive::put_design(const std::string& design_json, const std::string& origin) {
-    DesignRecord d;
-    d.canonical_json = canonical_json(design_json, origin);
-    d.address = content_address(d.canonical_json, origin);
-    {
-        const auto parsed = nlohmann::json::parse(d.canonical_json);
-        if (parsed.is_object() && parsed.contains("name") && parsed["name"].is_string())
-            d.name = parsed["name"].get<std::string>();
-    }
+    const DesignRecord d = canonical_design(design_json, origin);
     return impl_->guarded([&] {
         auto txn = impl_->write_transaction();
         auto& st = impl_->query(

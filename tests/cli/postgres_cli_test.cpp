@@ -212,6 +212,9 @@ TEST_CASE("a role with only the README's privileges runs sweeps, history and boa
     const auto bj = nlohmann::json::parse(boards.out);
     REQUIRE(bj["boards"].size() == 1);
     CHECK(bj["boards"][0]["serial"] == "PA1-2611-0301");
+    const CliResult lots = run_cli({"--db", db, "lots"});
+    INFO(lots.err);
+    CHECK(lots.code == 0);
 
     // Import and export too, and the archive's rows say who wrote them.
     write_text(b.path("hand.csv"), "freq_hz,gain_db\n100,39.5\n1000,40.1\n");
