@@ -316,27 +316,23 @@ struct PostgresArchive::Impl {
         return user.empty() ? std::string("the connecting user") : "user " + user;
     }
 
-    [[noreturn]] void fail_sql(const pqxx::sql_error& e) const {
-        const std::string state = e.sqlstate();
-        if (state == "42501")  // insufficient_privilege
-            throw StoreError(fmt::format(
-                "archive {}: {} lacks a privilege the archive needs ({}); see README, "
-                "\"Shared archive on PostgreSQL\"",
-                url, who(), one_line(e.what())));
-        if (state == "40001" || state == "40P01")
-            throw StoreError(fmt::format("archive {}: conflict with another station ({})", url,
-                                         one_line(e.what())));
-        throw StoreError(fmt::format("archive {}: {}", url, one_line(e.what())));
-    }
-
     template <class F>
     auto guarded(F&& f) -> decltype(f()) {
         try {
             return f();
         } catch (const Error&) {
             throw;
+        } catch (const pqxx::insufficient_privilege& e) {
+            // libpqxx 6.4 tells the SQLSTATE class by the exception type (sqlstate() is empty).
+            throw StoreError(fmt::format(
+                "archive {}: {} lacks a privilege the archive needs ({}); see README, "
+                "\"Shared archive on PostgreSQL\"",
+                url, who(), one_line(e.what())));
+        } catch (const pqxx::transaction_rollback& e) {
+            throw StoreError(fmt::format("archive {}: conflict with another station ({})", url,
+                                         one_line(e.what())));
         } catch (const pqxx::sql_error& e) {
-            fail_sql(e);
+            throw StoreError(fmt::format("archive {}: {}", url, one_line(e.what())));
         } catch (const pqxx::broken_connection& e) {
             throw StoreError(fmt::format("archive {}: no connection to the server ({})", url,
                                          one_line(e.what())));

@@ -242,6 +242,14 @@ TEST_CASE("a role that may not create tables meets an empty database with a clea
                           Catch::Contains("README"));
     CHECK(std::count(r.err.begin(), r.err.end(), '\n') == 1);
     CHECK(b.query("SELECT count(*) FROM pg_tables WHERE schemaname = 'public'") == "0");
+
+    // Once the owner has created the tables, a role without rights on them is told which.
+    REQUIRE(run_cli({"--db", b.location(), "boards"}).code == 0);
+    const CliResult denied = run_cli({"--db", reader.url(b.location()), "boards"});
+    CHECK(denied.code == 4);
+    CHECK_THAT(denied.err, Catch::Contains("user " + reader.name() + " lacks a privilege") &&
+                               Catch::Contains("permission denied") &&
+                               Catch::Contains("README"));
 }
 
 TEST_CASE("resuming a session that a running sweep holds names the holding station",

@@ -58,11 +58,11 @@ TEST_CASE("import then history, boards and export", "[cli][store]") {
 
     auto boards = run_cli({"--db", b.location(), "boards", "--json"});
     REQUIRE(boards.code == 0);
-    const json b = json::parse(boards.out);
-    REQUIRE(b["boards"].size() == 1);
-    CHECK(b["boards"][0]["serial"] == "PA1-2611-0042");
-    CHECK(b["boards"][0]["sessions"] == 1);
-    CHECK(b["boards"][0]["latest"]["status"] == "complete");
+    const json bj = json::parse(boards.out);
+    REQUIRE(bj["boards"].size() == 1);
+    CHECK(bj["boards"][0]["serial"] == "PA1-2611-0042");
+    CHECK(bj["boards"][0]["sessions"] == 1);
+    CHECK(bj["boards"][0]["latest"]["status"] == "complete");
     CHECK(run_cli({"--db", b.location(), "boards"}).out.find("PA1-2611-0042") != std::string::npos);
 }
 
