@@ -15,6 +15,31 @@
 
 namespace ampbench::store {
 
+namespace columns {
+
+const char* const session =
+    "s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, s.operator, "
+    "s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes";
+
+const char* const point =
+    "id, uuid, sequence, plan_index, freq_hz, in_amplitude_v, in_amplitude_sd_v, in_phase_deg, "
+    "in_phase_sd_deg, out_amplitude_v, out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, "
+    "gain_db, gain_db_sd, phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc, "
+    "superseded_by";
+
+const char* const fit =
+    "id, uuid, session_id, kind, model, params_json, report_json, midband_gain_db, f_low_hz, "
+    "f_high_hz, created_utc";
+
+const char* const lot =
+    "id, uuid, lot_code, plan_json, quantity, supplier, status, session_id, created_utc";
+
+const char* const device =
+    "id, uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, vbe_sd_v, ic_a, ic_sd_a, "
+    "vce_v, vce_sd_v, passed, skipped_reason, replacement_of";
+
+}  // namespace columns
+
 std::string utc_iso(double unix_s) {
     const auto seconds = static_cast<std::time_t>(std::floor(unix_s));
     std::tm tm{};

@@ -9,6 +9,16 @@
 
 namespace ampbench::store {
 
+// The column lists both backends read their records by, in the order the readers expect
+// (`session` names the sessions table s and the boards table b).
+namespace columns {
+extern const char* const session;
+extern const char* const point;
+extern const char* const fit;
+extern const char* const lot;
+extern const char* const device;
+}  // namespace columns
+
 // "2026-11-03T10:15:02Z" for a time in seconds since the Unix epoch.
 std::string utc_iso(double unix_s);
 // gethostname(), or "unknown-host".

@@ -104,9 +104,6 @@ private:
     pqxx::row::size_type at_;
 };
 
-const char* const pg_session_columns =
-    "s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, s.operator, "
-    "s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes";
 
 Session session_from(Cols& c) {
     Session s;
@@ -127,11 +124,6 @@ Session session_from(Cols& c) {
     return s;
 }
 
-const char* const pg_point_columns =
-    "id, uuid, sequence, plan_index, freq_hz, in_amplitude_v, in_amplitude_sd_v, in_phase_deg, "
-    "in_phase_sd_deg, out_amplitude_v, out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, "
-    "gain_db, gain_db_sd, phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc, "
-    "superseded_by";
 
 Point point_from(const pqxx::row& row) {
     Cols c(row);
@@ -155,9 +147,6 @@ Point point_from(const pqxx::row& row) {
     return p;
 }
 
-const char* const pg_fit_columns =
-    "id, uuid, session_id, kind, model, params_json, report_json, midband_gain_db, f_low_hz, "
-    "f_high_hz, created_utc";
 
 FitRecord fit_from(const pqxx::row& row) {
     Cols c(row);
@@ -176,8 +165,6 @@ FitRecord fit_from(const pqxx::row& row) {
     return f;
 }
 
-const char* const pg_lot_columns =
-    "id, uuid, lot_code, plan_json, quantity, supplier, status, session_id, created_utc";
 
 Lot lot_from(const pqxx::row& row) {
     Cols c(row);
@@ -194,9 +181,6 @@ Lot lot_from(const pqxx::row& row) {
     return l;
 }
 
-const char* const pg_device_columns =
-    "id, uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, vbe_sd_v, ic_a, ic_sd_a, "
-    "vce_v, vce_sd_v, passed, skipped_reason, replacement_of";
 
 Device device_from(const pqxx::row& row) {
     Cols c(row);
@@ -560,7 +544,7 @@ struct PostgresArchive::Impl {
 
     std::optional<Session> find_session(pqxx::transaction_base& t, std::int64_t id) {
         const auto r = run(t,
-                           std::string("SELECT ") + pg_session_columns +
+                           std::string("SELECT ") + columns::session +
                                " FROM sessions s JOIN boards b ON b.id = s.board_id "
                                "WHERE s.id = $1",
                            id);
@@ -579,7 +563,7 @@ struct PostgresArchive::Impl {
                                         const std::vector<Param>& values) {
         std::vector<Session> out;
         for (const auto& row : run_values(t,
-                                          std::string("SELECT ") + pg_session_columns +
+                                          std::string("SELECT ") + columns::session +
                                               " FROM sessions s JOIN boards b ON b.id = "
                                               "s.board_id " +
                                               where,
@@ -609,7 +593,7 @@ struct PostgresArchive::Impl {
     std::vector<Point> read_points(pqxx::transaction_base& t, std::int64_t session_id,
                                    bool current_only) {
         std::vector<Point> points;
-        const std::string sql = std::string("SELECT ") + pg_point_columns +
+        const std::string sql = std::string("SELECT ") + columns::point +
                                 " FROM points WHERE session_id = $1" +
                                 (current_only ? " AND superseded_by IS NULL" : "") +
                                 " ORDER BY sequence";
@@ -620,7 +604,7 @@ struct PostgresArchive::Impl {
     std::vector<FitRecord> read_fits(pqxx::transaction_base& t, std::int64_t session_id) {
         std::vector<FitRecord> out;
         for (const auto& row : run(t,
-                                   std::string("SELECT ") + pg_fit_columns +
+                                   std::string("SELECT ") + columns::fit +
                                        " FROM fits WHERE session_id = $1 ORDER BY id",
                                    session_id))
             out.push_back(fit_from(row));
@@ -1122,7 +1106,7 @@ std::optional<Lot> PostgresArchive::lot(const std::string& lot_code) {
     return impl_->guarded([&]() -> std::optional<Lot> {
         pqxx::read_transaction t(*impl_->conn);
         const auto r = impl_->run(
-            t, std::string("SELECT ") + pg_lot_columns + " FROM lots WHERE lot_code = $1",
+            t, std::string("SELECT ") + columns::lot + " FROM lots WHERE lot_code = $1",
             lot_code);
         if (r.empty()) return std::nullopt;
         return lot_from(r[0]);
@@ -1134,7 +1118,7 @@ std::vector<Lot> PostgresArchive::lots() {
         pqxx::read_transaction t(*impl_->conn);
         std::vector<Lot> out;
         for (const auto& row :
-             impl_->run(t, std::string("SELECT ") + pg_lot_columns + " FROM lots ORDER BY id"))
+             impl_->run(t, std::string("SELECT ") + columns::lot + " FROM lots ORDER BY id"))
             out.push_back(lot_from(row));
         return out;
     });
@@ -1186,7 +1170,7 @@ std::vector<Device> PostgresArchive::devices(std::int64_t lot_id) {
         pqxx::read_transaction t(*impl_->conn);
         std::vector<Device> out;
         for (const auto& row : impl_->run(t,
-                                          std::string("SELECT ") + pg_device_columns +
+                                          std::string("SELECT ") + columns::device +
                                               " FROM devices WHERE lot_id = $1 "
                                               "ORDER BY device_index, id",
                                           lot_id))

@@ -106,9 +106,7 @@ void check_file_header(const std::string& path) {
             path, info.st_size, pages, page_size));
 }
 
-const char* const session_columns =
-    "s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, s.operator, "
-    "s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes";
+const char* const session_columns = columns::session;
 
 Session read_session(SQLite::Statement& st, int first = 0) {
     Session s;
@@ -129,11 +127,7 @@ Session read_session(SQLite::Statement& st, int first = 0) {
     return s;
 }
 
-const char* const point_columns =
-    "id, uuid, sequence, plan_index, freq_hz, in_amplitude_v, in_amplitude_sd_v, in_phase_deg, "
-    "in_phase_sd_deg, out_amplitude_v, out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, "
-    "gain_db, gain_db_sd, phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc, "
-    "superseded_by";
+const char* const point_columns = columns::point;
 
 Point read_point(SQLite::Statement& st) {
     Point p;
@@ -162,9 +156,7 @@ Point read_point(SQLite::Statement& st) {
     return p;
 }
 
-const char* const fit_columns =
-    "id, uuid, session_id, kind, model, params_json, report_json, midband_gain_db, f_low_hz, "
-    "f_high_hz, created_utc";
+const char* const fit_columns = columns::fit;
 
 FitRecord read_fit(SQLite::Statement& st) {
     FitRecord f;
@@ -182,8 +174,7 @@ FitRecord read_fit(SQLite::Statement& st) {
     return f;
 }
 
-const char* const lot_columns =
-    "id, uuid, lot_code, plan_json, quantity, supplier, status, session_id, created_utc";
+const char* const lot_columns = columns::lot;
 
 Lot read_lot(SQLite::Statement& st) {
     Lot l;
@@ -199,9 +190,7 @@ Lot read_lot(SQLite::Statement& st) {
     return l;
 }
 
-const char* const device_columns =
-    "id, uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, vbe_sd_v, ic_a, ic_sd_a, "
-    "vce_v, vce_sd_v, passed, skipped_reason, replacement_of";
+const char* const device_columns = columns::device;
 
 Device read_device(SQLite::Statement& st) {
     Device d;
