@@ -343,6 +343,9 @@ struct PostgresArchive::Impl {
         conn->set_client_encoding("UTF8");
         pqxx::nontransaction t(*conn);
         t.exec("SET application_name = 'ampbench'");
+        // Prepared statements are planned for their parameters each time: a plan cached while
+        // a table was nearly empty (a sequential scan) would otherwise stay as it grows.
+        t.exec("SET plan_cache_mode = force_custom_plan");
     }
 
     // The archive's version here: 0 when none of our tables exist.
