@@ -257,3 +257,21 @@ TEST_CASE("stations meeting an empty database at once migrate it once", "[store]
           std::to_string(current_schema_version()));
     CHECK(b.query("SELECT count(*) FROM sessions WHERE status = 'complete'") == "4");
 }
+
+TEST_CASE("a database of another program or no server at all gives one clear StoreError",
+          "[store][postgres]") {
+    AMPBENCH_POSTGRES_ONLY(b);
+    b.exec("CREATE TABLE sessions (name text)");
+    CHECK_THROWS_WITH(open_archive(b.location()),
+                      Catch::Contains(b.location()) && Catch::Contains("not an ampbench archive"));
+    // Port 1 on the loopback: nothing listens there.
+    try {
+        open_archive("postgresql://bench@127.0.0.1:1/ampbench");
+        FAIL("connected to port 1");
+    } catch (const StoreError& e) {
+        const std::string text = e.what();
+        CHECK_THAT(text, Catch::Contains("postgresql://bench@127.0.0.1:1/ampbench") &&
+                             Catch::Contains("cannot connect"));
+        CHECK(text.find('\n') == std::string::npos);
+    }
+}
