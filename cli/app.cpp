@@ -26,7 +26,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     app.set_version_flag("--version", std::string("ampbench ") + software_version());
     app.require_subcommand(1);
     app.fallthrough();
-    app.add_option("--db", ctx.global.db, "Archive file (default $AMPBENCH_DB or ./ampbench.sqlite)");
+    app.add_option("--db", ctx.global.db, "Archive file or postgresql:// URL (default $AMPBENCH_DB or ./ampbench.sqlite)");
     app.add_option("--trace", ctx.global.trace, "Log every instrument exchange to FILE");
     add_predict_command(app, ctx);
     add_simulate_command(app, ctx);

@@ -15,7 +15,7 @@ namespace ampbench::cli {
 
 // Options that every command accepts.
 struct GlobalOptions {
-    std::string db;     // --db PATH (else $AMPBENCH_DB, else ./ampbench.sqlite)
+    std::string db;     // --db PATH or URL (else $AMPBENCH_DB, else ./ampbench.sqlite)
     std::string trace;  // --trace FILE: log every instrument exchange
 };
 

@@ -6,9 +6,13 @@
 
 namespace ampbench::store {
 
+// One numbered step, written once per backend (the same tables, columns and constraints, with
+// the types mapped: INTEGER PRIMARY KEY -> BIGSERIAL, INTEGER -> BIGINT, REAL -> DOUBLE
+// PRECISION, 0/1 flags -> BOOLEAN). Fixed scripts: no user text ever goes into SQL.
 struct Migration {
     int version;
-    const char* sql;  // a fixed script: no user text ever goes into SQL
+    const char* sqlite;
+    const char* postgres;
 };
 
 // In version order, starting at 1.

@@ -22,6 +22,7 @@
 
 #include "core/errors.h"
 #include "core/version.h"
+#include "store/archive_util.h"
 #include "store/canonical_json.h"
 #include "store/schema.h"
 #include "store/uuid.h"
@@ -29,28 +30,6 @@
 namespace ampbench::store {
 
 namespace {
-
-std::string utc_iso(double unix_s) {
-    const auto seconds = static_cast<std::time_t>(std::floor(unix_s));
-    std::tm tm{};
-    gmtime_r(&seconds, &tm);
-    std::array<char, 32> text{};
-    std::strftime(text.data(), text.size(), "%Y-%m-%dT%H:%M:%SZ", &tm);
-    return text.data();
-}
-
-std::string this_host() {
-    std::array<char, 256> name{};
-    if (gethostname(name.data(), name.size() - 1) != 0) return "unknown-host";
-    return name.data();
-}
-
-// A pid is alive when signal 0 can be sent to it (EPERM: it exists but is not ours).
-bool pid_alive(std::int64_t pid) {
-    if (pid <= 0) return false;
-    if (::kill(static_cast<pid_t>(pid), 0) == 0) return true;
-    return errno == EPERM;
-}
 
 void bind_optional(SQLite::Statement& st, int index, const std::optional<double>& value) {
     if (value)
@@ -127,9 +106,7 @@ void check_file_header(const std::string& path) {
             path, info.st_size, pages, page_size));
 }
 
-const char* const session_columns =
-    "s.id, s.uuid, b.serial, s.kind, s.status, s.started_utc, s.finished_utc, s.operator, "
-    "s.host, s.pid, s.heartbeat_unix_s, s.bench_file, s.software_version, s.notes";
+const char* const session_columns = columns::session;
 
 Session read_session(SQLite::Statement& st, int first = 0) {
     Session s;
@@ -150,11 +127,7 @@ Session read_session(SQLite::Statement& st, int first = 0) {
     return s;
 }
 
-const char* const point_columns =
-    "id, uuid, sequence, plan_index, freq_hz, in_amplitude_v, in_amplitude_sd_v, in_phase_deg, "
-    "in_phase_sd_deg, out_amplitude_v, out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, "
-    "gain_db, gain_db_sd, phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc, "
-    "superseded_by";
+const char* const point_columns = columns::point;
 
 Point read_point(SQLite::Statement& st) {
     Point p;
@@ -183,9 +156,7 @@ Point read_point(SQLite::Statement& st) {
     return p;
 }
 
-const char* const fit_columns =
-    "id, uuid, session_id, kind, model, params_json, report_json, midband_gain_db, f_low_hz, "
-    "f_high_hz, created_utc";
+const char* const fit_columns = columns::fit;
 
 FitRecord read_fit(SQLite::Statement& st) {
     FitRecord f;
@@ -203,8 +174,7 @@ FitRecord read_fit(SQLite::Statement& st) {
     return f;
 }
 
-const char* const lot_columns =
-    "id, uuid, lot_code, plan_json, quantity, supplier, status, session_id, created_utc";
+const char* const lot_columns = columns::lot;
 
 Lot read_lot(SQLite::Statement& st) {
     Lot l;
@@ -220,9 +190,7 @@ Lot read_lot(SQLite::Statement& st) {
     return l;
 }
 
-const char* const device_columns =
-    "id, uuid, lot_id, device_index, readings_json, hfe, hfe_sd, vbe_v, vbe_sd_v, ic_a, ic_sd_a, "
-    "vce_v, vce_sd_v, passed, skipped_reason, replacement_of";
+const char* const device_columns = columns::device;
 
 Device read_device(SQLite::Statement& st) {
     Device d;
@@ -405,7 +373,7 @@ struct SqliteArchive::Impl {
         refuse_newer(version);
         for (const auto& m : migrations()) {
             if (m.version <= version) continue;
-            db->exec(m.sql);
+            db->exec(m.sqlite);
             auto& st = query("INSERT INTO schema_version(version, applied_utc) VALUES (?, ?)");
             st.bind(1, m.version);
             st.bind(2, utc_iso(now()));
@@ -417,8 +385,8 @@ struct SqliteArchive::Impl {
 
     bool is_stale(const std::string& session_host, std::int64_t session_pid,
                   double heartbeat_s) const {
-        return heartbeat_s < now() - options.stale_after_s && session_host == host &&
-               !pid_alive(session_pid);
+        return stale_session(host, session_host, session_pid, heartbeat_s, now(),
+                             options.stale_after_s);
     }
 
     int mark_stale() {
@@ -702,14 +670,7 @@ const std::string& SqliteArchive::location() const { return impl_->path; }
 int SqliteArchive::schema_version() const { return impl_->version; }
 
 DesignRecord SqliteArchive::put_design(const std::string& design_json, const std::string& origin) {
-    DesignRecord d;
-    d.canonical_json = canonical_json(design_json, origin);
-    d.address = content_address(d.canonical_json, origin);
-    {
-        const auto parsed = nlohmann::json::parse(d.canonical_json);
-        if (parsed.is_object() && parsed.contains("name") && parsed["name"].is_string())
-            d.name = parsed["name"].get<std::string>();
-    }
+    const DesignRecord d = canonical_design(design_json, origin);
     return impl_->guarded([&] {
         auto txn = impl_->write_transaction();
         auto& st = impl_->query(
@@ -1118,19 +1079,6 @@ SessionDetail SqliteArchive::session_detail(std::int64_t session_id) {
         d.fits = fits(session_id);
         return d;
     });
-}
-
-std::unique_ptr<Archive> open_archive(const std::string& location, const ArchiveOptions& options) {
-    std::string path = location;
-    if (path.rfind("sqlite:", 0) == 0) {
-        path = path.substr(7);
-        if (path.rfind("//", 0) == 0) path = path.substr(2);
-    } else if (const auto colon = path.find("://"); colon != std::string::npos) {
-        throw StoreError(fmt::format("archive {}: the '{}' backend is not available in this build",
-                                     location, path.substr(0, colon)));
-    }
-    if (path.empty()) throw StoreError("archive: empty path");
-    return std::make_unique<SqliteArchive>(path, options);
 }
 
 }  // namespace ampbench::store

@@ -2,6 +2,10 @@
 // readings committed per second through Archive (one commit per reading, and batched) as a ratio
 // to raw sqlite3 C API inserts with the same pragmas, and history() of one serial among
 // 1,000,000 sessions as a ratio to the same call among 1,000.
+// With $AMPBENCH_BENCH_PG (or $AMPBENCH_TEST_PG), a superuser URL of a throwaway PostgreSQL
+// cluster, the same figures for the PostgreSQL archive in a database of its own (created and
+// dropped here): readings per second as a ratio to the SQLite archive's, history() among the
+// sessions with the plan PostgreSQL chose for it.
 // Usage: bench_store [points_per_commit_run] [sessions]   (defaults 2000 and 1000000)
 #include <sys/stat.h>
 #include <unistd.h>
@@ -16,9 +20,11 @@
 #include <vector>
 
 #include <fmt/format.h>
+#include <pqxx/pqxx>
 #include <sqlite3.h>
 
 #include "store/archive.h"
+#include "store/postgres_archive.h"
 
 using namespace ampbench::store;
 using Clock = std::chrono::steady_clock;
@@ -179,6 +185,71 @@ double history_s(const std::string& path, const std::string& serial, size_t* fou
     return times[20];
 }
 
+// The PostgreSQL archive: write rates against the SQLite archive's, and history() among
+// `sessions` sessions filled server-side.
+void postgres_figures(const std::string& server, int per_commit, int batched, int batch,
+                      long sessions, double sqlite_one, double sqlite_batch) {
+    const std::string database = fmt::format("ampbench_bench_{}", ::getpid());
+    pqxx::connection admin(server);
+    {
+        pqxx::nontransaction t(admin);
+        t.exec("CREATE DATABASE " + admin.quote_name(database));
+    }
+    const auto slash = server.rfind('/');
+    const std::string url = server.substr(0, slash + 1) + database;
+    try {
+        fmt::print("PostgreSQL archive ({}), one connection\n", url);
+        {
+            auto archive = open_archive(url);
+            const double one = archive_points_per_s(*archive, per_commit, 1);
+            const double many = archive_points_per_s(*archive, batched, batch);
+            fmt::print("  one commit per reading: {:9.0f}/s, SQLite archive {:9.0f}/s, ratio {:.2f}\n",
+                       one, sqlite_one, one / sqlite_one);
+            fmt::print("  {} readings a commit:   {:9.0f}/s, SQLite archive {:9.0f}/s, ratio {:.2f}\n",
+                       batch, many, sqlite_batch, many / sqlite_batch);
+        }
+        pqxx::connection c(url);
+        {
+            pqxx::work t(c);
+            const long boards = std::max(1L, sessions / 10);
+            t.exec("DELETE FROM points; DELETE FROM sessions; DELETE FROM boards");
+            t.exec_params(
+                "INSERT INTO boards(id, serial, created_utc) SELECT b, 'PA1-' || "
+                "lpad((b / 10000)::text, 4, '0') || '-' || lpad((b % 10000)::text, 4, '0'), "
+                "'2026-01-01T00:00:00Z' FROM generate_series(1::bigint, $1::bigint) b",
+                boards);
+            t.exec_params(
+                "INSERT INTO sessions(uuid, board_id, kind, status, started_utc, "
+                "heartbeat_unix_s) SELECT lpad(to_hex(i), 8, '0') || '-0000-4000-8000-' || "
+                "lpad(to_hex(i), 12, '0'), 1 + (i * 7919) % $2::bigint, 'sweep', 'complete', "
+                "'2026-' || lpad((1 + i % 12)::text, 2, '0') || '-' || lpad((1 + i % 28)::text, "
+                "2, '0') || 'T' || lpad((i % 24)::text, 2, '0') || ':00:00Z', 1.8e9 "
+                "FROM generate_series(0::bigint, $1::bigint - 1) i",
+                sessions, boards);
+            t.commit();
+        }
+        {
+            pqxx::nontransaction t(c);
+            t.exec("ANALYZE");
+            const auto plan = t.exec(std::string("PREPARE h(text) AS ") +
+                                     PostgresArchive::history_query() +
+                                     "; EXPLAIN EXECUTE h('PA1-0004-0242')");
+            fmt::print("  plan of history() among {} sessions:\n", sessions);
+            for (const auto& row : plan) fmt::print("    {}\n", row[0].c_str());
+        }
+        size_t found = 0;
+        const double t_pg = history_s(url, "PA1-0004-0242", &found);
+        fmt::print("  history among {:>8} sessions: {:8.1f} us ({} sessions of the board)\n",
+                   sessions, t_pg * 1e6, found);
+    } catch (...) {
+        pqxx::nontransaction t(admin);
+        t.exec("DROP DATABASE IF EXISTS " + admin.quote_name(database) + " WITH (FORCE)");
+        throw;
+    }
+    pqxx::nontransaction t(admin);
+    t.exec("DROP DATABASE IF EXISTS " + admin.quote_name(database) + " WITH (FORCE)");
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -214,6 +285,13 @@ int main(int argc, char** argv) {
                    t_small * 1e6, found_small);
         fmt::print("  among {:>8} sessions: {:8.1f} us ({} sessions of the board), ratio {:.2f}\n",
                    sessions, t_large * 1e6, found_large, t_large / t_small);
+
+        const char* server = std::getenv("AMPBENCH_BENCH_PG");
+        if (!server || !*server) server = std::getenv("AMPBENCH_TEST_PG");
+        if (server && *server)
+            postgres_figures(server, per_commit, batched, batch, sessions, ours_one, ours_batch);
+        else
+            fmt::print("PostgreSQL archive: skipped (set AMPBENCH_BENCH_PG to a throwaway cluster)\n");
     } catch (const std::exception& e) {
         std::fprintf(stderr, "bench_store: %s\n", e.what());
         std::filesystem::remove_all(dir);

@@ -1,4 +1,5 @@
-// The archive commands end to end: import, history, boards and export on a temporary archive.
+// The archive commands end to end: import, history, boards and export, on a fresh SQLite file
+// and on a fresh PostgreSQL database.
 #include <catch2/catch.hpp>
 
 #include <cmath>
@@ -6,6 +7,7 @@
 #include <nlohmann/json.hpp>
 
 #include "cli_support.h"
+#include "test_backend.h"
 #include "store/archive.h"
 #include "store/canonical_json.h"
 
@@ -26,15 +28,15 @@ const char* const hand_csv =
 }  // namespace
 
 TEST_CASE("import then history, boards and export", "[cli][store]") {
-    CliTempDir dir;
-    write_text(dir.path("hand.csv"), hand_csv);
-    auto imported = run_cli({"--db", dir.db(), "import", dir.path("hand.csv"), "--board",
+    AMPBENCH_EACH_BACKEND(b);
+    write_text(b.path("hand.csv"), hand_csv);
+    auto imported = run_cli({"--db", b.location(), "import", b.path("hand.csv"), "--board",
                              "PA1-2611-0042"});
     INFO(imported.err);
     REQUIRE(imported.code == 0);
     CHECK_THAT(imported.out, Catch::Contains("imported 4 readings"));
 
-    auto history = run_cli({"--db", dir.db(), "history", "PA1-2611-0042", "--json"});
+    auto history = run_cli({"--db", b.location(), "history", "PA1-2611-0042", "--json"});
     REQUIRE(history.code == 0);
     const json h = json::parse(history.out);
     CHECK(h["board"] == "PA1-2611-0042");
@@ -50,42 +52,42 @@ TEST_CASE("import then history, boards and export", "[cli][store]") {
     CHECK(s["f_low_hz"].is_null());
     CHECK(s["f_high_hz"].is_null());
 
-    auto table = run_cli({"--db", dir.db(), "history", "PA1-2611-0042"});
+    auto table = run_cli({"--db", b.location(), "history", "PA1-2611-0042"});
     REQUIRE(table.code == 0);
     CHECK_THAT(table.out, Catch::Contains("import") && Catch::Contains("complete"));
 
-    auto boards = run_cli({"--db", dir.db(), "boards", "--json"});
+    auto boards = run_cli({"--db", b.location(), "boards", "--json"});
     REQUIRE(boards.code == 0);
-    const json b = json::parse(boards.out);
-    REQUIRE(b["boards"].size() == 1);
-    CHECK(b["boards"][0]["serial"] == "PA1-2611-0042");
-    CHECK(b["boards"][0]["sessions"] == 1);
-    CHECK(b["boards"][0]["latest"]["status"] == "complete");
-    CHECK(run_cli({"--db", dir.db(), "boards"}).out.find("PA1-2611-0042") != std::string::npos);
+    const json bj = json::parse(boards.out);
+    REQUIRE(bj["boards"].size() == 1);
+    CHECK(bj["boards"][0]["serial"] == "PA1-2611-0042");
+    CHECK(bj["boards"][0]["sessions"] == 1);
+    CHECK(bj["boards"][0]["latest"]["status"] == "complete");
+    CHECK(run_cli({"--db", b.location(), "boards"}).out.find("PA1-2611-0042") != std::string::npos);
 }
 
 TEST_CASE("export then import gives the same readings", "[cli][store]") {
-    CliTempDir dir;
-    write_text(dir.path("hand.csv"), hand_csv);
-    REQUIRE(run_cli({"--db", dir.db(), "import", dir.path("hand.csv"), "--board", "A"}).code == 0);
-    REQUIRE(run_cli({"--db", dir.db(), "export", "1", "--csv", "-o", dir.path("out.csv")}).code == 0);
-    REQUIRE(run_cli({"--db", dir.db(), "import", dir.path("out.csv"), "--board", "B"}).code == 0);
-    auto first = run_cli({"--db", dir.db(), "export", "1", "--csv"});
-    auto second = run_cli({"--db", dir.db(), "export", "2", "--csv"});
+    AMPBENCH_EACH_BACKEND(b);
+    write_text(b.path("hand.csv"), hand_csv);
+    REQUIRE(run_cli({"--db", b.location(), "import", b.path("hand.csv"), "--board", "A"}).code == 0);
+    REQUIRE(run_cli({"--db", b.location(), "export", "1", "--csv", "-o", b.path("out.csv")}).code == 0);
+    REQUIRE(run_cli({"--db", b.location(), "import", b.path("out.csv"), "--board", "B"}).code == 0);
+    auto first = run_cli({"--db", b.location(), "export", "1", "--csv"});
+    auto second = run_cli({"--db", b.location(), "export", "2", "--csv"});
     REQUIRE(first.code == 0);
     REQUIRE(second.code == 0);
     auto body = [](const std::string& text) { return text.substr(text.find("freq_hz")); };
     CHECK(body(first.out) == body(second.out));
     CHECK_THAT(first.out, Catch::Contains("20,34.0123456789,131.25,0.04,0.3\n"));
     CHECK_THAT(first.out, Catch::Contains("50000,39.96,171.4,,\n"));
-    CHECK(read_text(dir.path("out.csv")) == first.out);
+    CHECK(read_text(b.path("out.csv")) == first.out);
 }
 
 TEST_CASE("the JSON export holds superseded readings, instruments and settings", "[cli][store]") {
-    CliTempDir dir;
+    AMPBENCH_EACH_BACKEND(b);
     std::int64_t id = 0;
     {
-        auto archive = store::open_archive(dir.db());
+        auto archive = store::open_archive(b.location());
         store::NewSession ns;
         ns.board_serial = "SB3-2611-0007";
         ns.instruments = {{"scope", "HVE,SC-2,0002,2.1", "SCP-02", "tcp://192.0.2.12", "2027-01-15",
@@ -102,7 +104,7 @@ TEST_CASE("the JSON export holds superseded readings, instruments and settings",
         archive->append_point(id, p);
         archive->finish_session(id, store::SessionStatus::complete);
     }
-    auto exported = run_cli({"--db", dir.db(), "export", std::to_string(id), "--json"});
+    auto exported = run_cli({"--db", b.location(), "export", std::to_string(id), "--json"});
     REQUIRE(exported.code == 0);
     const json doc = json::parse(exported.out);
     CHECK(doc["format"] == "ampbench-session/1");
@@ -114,16 +116,16 @@ TEST_CASE("the JSON export holds superseded readings, instruments and settings",
     CHECK(doc["instruments"][0]["settings"]["coupling"] == "dc");
     CHECK(doc["plan"][0]["freq_hz"] == 1000.0);
     // The CSV holds the current reading only.
-    auto csv = run_cli({"--db", dir.db(), "export", std::to_string(id), "--csv"});
+    auto csv = run_cli({"--db", b.location(), "export", std::to_string(id), "--csv"});
     CHECK_THAT(csv.out, Catch::EndsWith("1000,20.5,,,\n"));
 }
 
 TEST_CASE("the amplitude form imports with gain from the two amplitudes", "[cli][store]") {
-    CliTempDir dir;
-    write_text(dir.path("amp.csv"), "freq_hz,vin_vpp,vout_vpp,phase_deg\n1000,0.1,3.2,-178\n");
-    REQUIRE(run_cli({"--db", dir.db(), "import", dir.path("amp.csv"), "--board", "LD2-2611-0003"})
+    AMPBENCH_EACH_BACKEND(b);
+    write_text(b.path("amp.csv"), "freq_hz,vin_vpp,vout_vpp,phase_deg\n1000,0.1,3.2,-178\n");
+    REQUIRE(run_cli({"--db", b.location(), "import", b.path("amp.csv"), "--board", "LD2-2611-0003"})
                 .code == 0);
-    auto archive = store::open_archive(dir.db());
+    auto archive = store::open_archive(b.location());
     const auto points = archive->current_points(1);
     REQUIRE(points.size() == 1);
     // common practice: gain in dB = 20·log10(Vout/Vin); 32× is 30.103 dB.
@@ -133,62 +135,62 @@ TEST_CASE("the amplitude form imports with gain from the two amplitudes", "[cli]
 
 TEST_CASE("a file with bad rows is refused with line numbers and nothing is written",
           "[cli][store]") {
-    CliTempDir dir;
-    write_text(dir.path("bad.csv"),
+    AMPBENCH_EACH_BACKEND(b);
+    write_text(b.path("bad.csv"),
                "freq_hz,gain_db,phase_deg\n100,40,-180\n200,forty,-180\n300,40,-180\n400,,\n");
-    auto result = run_cli({"--db", dir.db(), "import", dir.path("bad.csv"), "--board", "X"});
+    auto result = run_cli({"--db", b.location(), "import", b.path("bad.csv"), "--board", "X"});
     CHECK(result.code == 2);
-    CHECK_THAT(result.err, Catch::Contains(dir.path("bad.csv")) && Catch::Contains("line 3") &&
+    CHECK_THAT(result.err, Catch::Contains(b.path("bad.csv")) && Catch::Contains("line 3") &&
                                Catch::Contains("line 5") && Catch::Contains("nothing imported"));
     CHECK(std::count(result.err.begin(), result.err.end(), '\n') == 1);
-    auto boards = run_cli({"--db", dir.db(), "boards", "--json"});
+    auto boards = run_cli({"--db", b.location(), "boards", "--json"});
     CHECK(json::parse(boards.out)["boards"].empty());
 }
 
 TEST_CASE("import --design stores the design by its content address", "[cli][store]") {
-    CliTempDir dir;
+    AMPBENCH_EACH_BACKEND(b);
     const std::string design = R"({ "name": "HVE-PA1 microphone preamp", "format": "ampbench-design/1",
         "supply": { "volts": "12", "node": "vcc" } })";
-    write_text(dir.path("pa1.design.json"), design);
-    write_text(dir.path("hand.csv"), hand_csv);
-    REQUIRE(run_cli({"--db", dir.db(), "import", dir.path("hand.csv"), "--board", "PA1-2611-0042",
-                     "--design", dir.path("pa1.design.json")})
+    write_text(b.path("pa1.design.json"), design);
+    write_text(b.path("hand.csv"), hand_csv);
+    REQUIRE(run_cli({"--db", b.location(), "import", b.path("hand.csv"), "--board", "PA1-2611-0042",
+                     "--design", b.path("pa1.design.json")})
                 .code == 0);
-    auto history = json::parse(run_cli({"--db", dir.db(), "history", "PA1-2611-0042", "--json"}).out);
+    auto history = json::parse(run_cli({"--db", b.location(), "history", "PA1-2611-0042", "--json"}).out);
     CHECK(history["design"] == store::content_address(design, "x"));
     CHECK(history["design_name"] == "HVE-PA1 microphone preamp");
 
-    write_text(dir.path("other.json"), R"({"format":"ampbench-bench/1"})");
-    auto wrong = run_cli({"--db", dir.db(), "import", dir.path("hand.csv"), "--board", "Y",
-                          "--design", dir.path("other.json")});
+    write_text(b.path("other.json"), R"({"format":"ampbench-bench/1"})");
+    auto wrong = run_cli({"--db", b.location(), "import", b.path("hand.csv"), "--board", "Y",
+                          "--design", b.path("other.json")});
     CHECK(wrong.code == 2);
     CHECK_THAT(wrong.err, Catch::Contains("other.json"));
 }
 
 TEST_CASE("hostile serials pass through the commands unchanged", "[cli][store]") {
-    CliTempDir dir;
+    AMPBENCH_EACH_BACKEND(b);
     const std::string serial = "'); DROP TABLE sessions;--\n\"µ\"";
-    write_text(dir.path("hand.csv"), hand_csv);
-    REQUIRE(run_cli({"--db", dir.db(), "import", dir.path("hand.csv"), "--board", serial}).code == 0);
-    auto history = run_cli({"--db", dir.db(), "history", serial, "--json"});
+    write_text(b.path("hand.csv"), hand_csv);
+    REQUIRE(run_cli({"--db", b.location(), "import", b.path("hand.csv"), "--board", serial}).code == 0);
+    auto history = run_cli({"--db", b.location(), "history", serial, "--json"});
     REQUIRE(history.code == 0);
     CHECK(json::parse(history.out)["board"] == serial);
-    CHECK(json::parse(run_cli({"--db", dir.db(), "boards", "--json"}).out)["boards"][0]["serial"] ==
+    CHECK(json::parse(run_cli({"--db", b.location(), "boards", "--json"}).out)["boards"][0]["serial"] ==
           serial);
 }
 
 TEST_CASE("archive commands fail with one line and the right exit code", "[cli][store]") {
-    CliTempDir dir;
-    auto unknown = run_cli({"--db", dir.db(), "history", "PA1-0000-0000"});
+    AMPBENCH_EACH_BACKEND(b);
+    auto unknown = run_cli({"--db", b.location(), "history", "PA1-0000-0000"});
     CHECK(unknown.code == 2);
     CHECK_THAT(unknown.err, Catch::Contains("no board"));
-    CHECK(run_cli({"--db", dir.db(), "export", "7", "--csv"}).code == 2);
-    CHECK(run_cli({"--db", dir.db(), "export", "1"}).code == 1);
-    CHECK(run_cli({"--db", dir.db(), "export", "1", "--csv", "--json"}).code == 1);
+    CHECK(run_cli({"--db", b.location(), "export", "7", "--csv"}).code == 2);
+    CHECK(run_cli({"--db", b.location(), "export", "1"}).code == 1);
+    CHECK(run_cli({"--db", b.location(), "export", "1", "--csv", "--json"}).code == 1);
 
-    write_text(dir.path("junk.sqlite"), std::string(4096, 'x'));
-    auto damaged = run_cli({"--db", dir.path("junk.sqlite"), "boards"});
+    write_text(b.path("junk.sqlite"), std::string(4096, 'x'));
+    auto damaged = run_cli({"--db", b.path("junk.sqlite"), "boards"});
     CHECK(damaged.code == 4);
-    CHECK_THAT(damaged.err, Catch::Contains(dir.path("junk.sqlite")));
+    CHECK_THAT(damaged.err, Catch::Contains(b.path("junk.sqlite")));
     CHECK(std::count(damaged.err.begin(), damaged.err.end(), '\n') == 1);
 }

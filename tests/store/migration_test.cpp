@@ -10,6 +10,7 @@
 #include "store/archive.h"
 #include "store/canonical_json.h"
 #include "store_support.h"
+#include "test_backend.h"
 
 using namespace ampbench::store;
 using testing::TempDir;
@@ -24,27 +25,24 @@ std::string fixture_sql(int version) {
     return testing::read_text_file(path);
 }
 
-std::vector<std::string> table_names(const std::string& path) {
-    SQLite::Database db(path, SQLite::OPEN_READONLY);
-    SQLite::Statement st(db,
-                         "SELECT name FROM sqlite_master WHERE type = 'table' "
-                         "AND name NOT LIKE 'sqlite_%' ORDER BY name");
-    std::vector<std::string> names;
-    while (st.executeStep()) names.push_back(st.getColumn(0).getString());
-    return names;
-}
-
 }  // namespace
 
-TEST_CASE("an empty file becomes an archive with every table", "[store][migration]") {
-    TempDir dir;
-    const std::string path = dir.path("empty.sqlite");
-    std::ofstream(path).close();
-    CHECK(open_archive(path)->schema_version() == current_schema_version());
+TEST_CASE("an empty file or database becomes an archive with every table", "[store][migration]") {
+    AMPBENCH_EACH_BACKEND(b);
+    if (b.sqlite()) std::ofstream(b.location()).close();
+    CHECK(open_archive(b.location())->schema_version() == current_schema_version());
     const std::vector<std::string> expected = {
         "boards", "designs", "devices", "fits",     "instruments",   "lots",
         "plan_points", "points", "probes", "schema_version", "sessions"};
-    CHECK(table_names(path) == expected);
+    const auto names = b.column(b.sqlite() ? "SELECT name FROM sqlite_master WHERE type = 'table' "
+                                             "AND name NOT LIKE 'sqlite_%' ORDER BY name"
+                                           : "SELECT tablename::text FROM pg_tables WHERE "
+                                             "schemaname = current_schema() ORDER BY tablename");
+    CHECK(names == expected);
+    // Opening again applies nothing twice.
+    CHECK(open_archive(b.location())->schema_version() == current_schema_version());
+    CHECK(b.query("SELECT count(*) FROM schema_version") ==
+          std::to_string(current_schema_version()));
 }
 
 TEST_CASE("archives of every earlier schema version open at the current one",
