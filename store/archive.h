@@ -192,6 +192,13 @@ struct ArchiveOptions {
     int busy_timeout_ms = 30000;
 };
 
+// Rows one copy_session/copy_lot call added, per table (zero everywhere when nothing moved).
+struct CopyCounts {
+    std::int64_t sessions = 0, instruments = 0, probes = 0, plan_points = 0, points = 0,
+                 fits = 0, lots = 0, devices = 0;
+    CopyCounts& operator+=(const CopyCounts& other);  // defined in store/copy_counts.cpp
+};
+
 // The archive. Every write is its own transaction, committed before the call returns.
 // Errors are StoreError naming the archive.
 class Archive {
@@ -252,6 +259,23 @@ public:
     // Every session of a board, newest first. StoreError-free: an unknown serial gives none.
     virtual std::vector<SessionSummary> history(const std::string& serial) = 0;
     virtual SessionDetail session_detail(std::int64_t session_id) = 0;
+
+    // --- Moving records between archives (sync). Records keep their UUIDs; ids are this
+    // archive's own and are never copied. ---
+    // Every session, oldest first (by id).
+    virtual std::vector<Session> sessions() = 0;
+    virtual std::optional<Session> session_by_uuid(const std::string& uuid) = 0;
+    // Writes a session read from another archive (its session_detail) in one transaction,
+    // keeping every UUID. The board (and its design) must be stored here first. When a session
+    // with that UUID exists here already, only the plan points (by index), readings and fits
+    // (by UUID) it lacks are added, and its status / finished time are brought up to date.
+    // superseded_by is mapped through the readings' UUIDs. Returns the rows added.
+    virtual CopyCounts copy_session(const SessionDetail& detail) = 0;
+    // The same for a lot and its devices (replacement_of mapped through device UUIDs);
+    // `session_uuid` names the lot's session in the other archive (empty: none; it must be
+    // copied first). An existing lot (by UUID) gets only its missing devices and its status.
+    virtual CopyCounts copy_lot(const Lot& lot, const std::string& session_uuid,
+                                const std::vector<Device>& devices) = 0;
 };
 
 // Opens (creating and migrating as needed) the archive at `location`: a file path, or

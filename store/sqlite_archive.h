@@ -61,6 +61,13 @@ public:
     std::vector<SessionSummary> history(const std::string& serial) override;
     SessionDetail session_detail(std::int64_t session_id) override;
 
+    // Defined in sqlite_sync.cpp.
+    std::vector<Session> sessions() override;
+    std::optional<Session> session_by_uuid(const std::string& uuid) override;
+    CopyCounts copy_session(const SessionDetail& detail) override;
+    CopyCounts copy_lot(const Lot& lot, const std::string& session_uuid,
+                        const std::vector<Device>& devices) override;
+
 private:
     struct Impl;
     std::unique_ptr<Impl> impl_;
