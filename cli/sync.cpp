@@ -297,8 +297,8 @@ void print_report(const SyncOptions& o, Context& ctx, const std::string& source,
                                source, sync.skipped().empty() ? "" : " (but see the skipped above)");
         return;
     }
-    ctx.out << fmt::format("\n{:<12}  {:>8}\n", "table", o.dry_run ? "would move" : "moved");
-    for (const auto& [name, n] : m.tables()) ctx.out << fmt::format("{:<12}  {:>8}\n", name, n);
+    ctx.out << fmt::format("\n{:<12}  {:>10}\n", "table", o.dry_run ? "would move" : "moved");
+    for (const auto& [name, n] : m.tables()) ctx.out << fmt::format("{:<12}  {:>10}\n", name, n);
     if (m.status_updates > 0)
         ctx.out << fmt::format("{} {} with only a newer status\n", m.status_updates,
                                m.status_updates == 1 ? "record" : "records");
