@@ -257,6 +257,45 @@ const char* const history_sql =
     "WHERE b.serial = ? "
     "ORDER BY s.started_utc DESC, s.id DESC";
 
+void bind_point_measurement(SQLite::Statement& st, int first, const Point& p) {
+    bind_optional(st, first, p.plan_index);
+    st.bind(first + 1, p.freq_hz);
+    bind_optional(st, first + 2, p.in_amplitude_v);
+    bind_optional(st, first + 3, p.in_amplitude_sd_v);
+    bind_optional(st, first + 4, p.in_phase_deg);
+    bind_optional(st, first + 5, p.in_phase_sd_deg);
+    bind_optional(st, first + 6, p.out_amplitude_v);
+    bind_optional(st, first + 7, p.out_amplitude_sd_v);
+    bind_optional(st, first + 8, p.out_phase_deg);
+    bind_optional(st, first + 9, p.out_phase_sd_deg);
+    st.bind(first + 10, p.gain_db);
+    bind_optional(st, first + 11, p.gain_db_sd);
+    bind_optional(st, first + 12, p.phase_deg);
+    bind_optional(st, first + 13, p.phase_deg_sd);
+    bind_optional(st, first + 14, p.thd_pct);
+    st.bind(first + 15, p.flags);
+    st.bind(first + 16, p.settings_json);
+    st.bind(first + 17, p.taken_utc);
+}
+
+void bind_device_readings(SQLite::Statement& st, int first, const Device& d) {
+    st.bind(first, d.index);
+    st.bind(first + 1, d.readings_json);
+    bind_optional(st, first + 2, d.hfe);
+    bind_optional(st, first + 3, d.hfe_sd);
+    bind_optional(st, first + 4, d.vbe_v);
+    bind_optional(st, first + 5, d.vbe_sd_v);
+    bind_optional(st, first + 6, d.ic_a);
+    bind_optional(st, first + 7, d.ic_sd_a);
+    bind_optional(st, first + 8, d.vce_v);
+    bind_optional(st, first + 9, d.vce_sd_v);
+    if (d.passed)
+        st.bind(first + 10, *d.passed ? 1 : 0);
+    else
+        st.bind(first + 10);
+    st.bind(first + 11, d.skipped_reason);
+}
+
 }  // namespace sqlite_detail
 
 const char* to_string(SessionKind kind) {
@@ -429,11 +468,18 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
     st.bind(11, in.notes);
     st.exec();
     const std::int64_t id = db->getLastInsertRowid();
-    for (const auto& i : in.instruments) {
+    insert_instruments(id, in.instruments);
+    insert_probes(id, in.probes);
+    return id;
+}
+
+void SqliteArchive::Impl::insert_instruments(std::int64_t session_id,
+                                             const std::vector<InstrumentRecord>& list) {
+    for (const auto& i : list) {
         auto& ins = query(
             "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
             "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-        ins.bind(1, id);
+        ins.bind(1, session_id);
         ins.bind(2, i.role);
         ins.bind(3, i.identity);
         ins.bind(4, i.asset);
@@ -443,11 +489,15 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
         ins.bind(8, i.settings_json);
         ins.exec();
     }
-    for (const auto& p : in.probes) {
+}
+
+void SqliteArchive::Impl::insert_probes(std::int64_t session_id,
+                                        const std::vector<ProbeRecord>& list) {
+    for (const auto& p : list) {
         auto& pr = query(
             "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
             "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
-        pr.bind(1, id);
+        pr.bind(1, session_id);
         pr.bind(2, p.name);
         pr.bind(3, p.channel);
         pr.bind(4, p.asset);
@@ -456,7 +506,6 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
         pr.bind(7, p.certificate);
         pr.exec();
     }
-    return id;
 }
 
 std::optional<Session> SqliteArchive::session(std::int64_t id) {
@@ -681,21 +730,7 @@ Device SqliteArchive::add_device(const Device& device) {
             "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
         st.bind(1, d.uuid);
         st.bind(2, d.lot_id);
-        st.bind(3, d.index);
-        st.bind(4, d.readings_json);
-        bind_optional(st, 5, d.hfe);
-        bind_optional(st, 6, d.hfe_sd);
-        bind_optional(st, 7, d.vbe_v);
-        bind_optional(st, 8, d.vbe_sd_v);
-        bind_optional(st, 9, d.ic_a);
-        bind_optional(st, 10, d.ic_sd_a);
-        bind_optional(st, 11, d.vce_v);
-        bind_optional(st, 12, d.vce_sd_v);
-        if (d.passed)
-            st.bind(13, *d.passed ? 1 : 0);
-        else
-            st.bind(13);
-        st.bind(14, d.skipped_reason);
+        bind_device_readings(st, 3, d);
         bind_optional(st, 15, d.replacement_of);
         st.exec();
         d.id = impl_->db->getLastInsertRowid();

@@ -49,6 +49,10 @@ Lot read_lot(SQLite::Statement& st);
 extern const char* const device_columns;
 Device read_device(SQLite::Statement& st);
 extern const char* const history_sql;
+// Binds a reading's columns plan_index .. taken_utc (18 values) from parameter `first`.
+void bind_point_measurement(SQLite::Statement& st, int first, const Point& p);
+// Binds a device's columns device_index .. skipped_reason (12 values) from parameter `first`.
+void bind_device_readings(SQLite::Statement& st, int first, const Device& d);
 
 }  // namespace sqlite_detail
 
@@ -393,24 +397,7 @@ struct SqliteArchive::Impl {
         st.bind(2, p.uuid);
         st.bind(3, session_id);
         st.bind(4, p.sequence);
-        bind_optional(st, 5, p.plan_index);
-        st.bind(6, p.freq_hz);
-        bind_optional(st, 7, p.in_amplitude_v);
-        bind_optional(st, 8, p.in_amplitude_sd_v);
-        bind_optional(st, 9, p.in_phase_deg);
-        bind_optional(st, 10, p.in_phase_sd_deg);
-        bind_optional(st, 11, p.out_amplitude_v);
-        bind_optional(st, 12, p.out_amplitude_sd_v);
-        bind_optional(st, 13, p.out_phase_deg);
-        bind_optional(st, 14, p.out_phase_sd_deg);
-        st.bind(15, p.gain_db);
-        bind_optional(st, 16, p.gain_db_sd);
-        bind_optional(st, 17, p.phase_deg);
-        bind_optional(st, 18, p.phase_deg_sd);
-        bind_optional(st, 19, p.thd_pct);
-        st.bind(20, p.flags);
-        st.bind(21, p.settings_json);
-        st.bind(22, p.taken_utc);
+        bind_point_measurement(st, 5, p);
         st.exec();
         return p;
     }
@@ -424,6 +411,8 @@ struct SqliteArchive::Impl {
 
     // Inside a write transaction: the session row, its instruments and probes.
     std::int64_t insert_session(const NewSession& in);
+    void insert_instruments(std::int64_t session_id, const std::vector<InstrumentRecord>& list);
+    void insert_probes(std::int64_t session_id, const std::vector<ProbeRecord>& list);
 
     std::vector<SessionSummary> summaries(const std::string& sql, const std::string& serial) {
         std::vector<SessionSummary> out;

@@ -98,35 +98,10 @@ CopyCounts SqliteArchive::copy_session(const SessionDetail& detail) {
             id = impl_->db->getLastInsertRowid();
             added.sessions = 1;
             // Instruments and probes are written once, when the session begins.
-            for (const auto& i : detail.instruments) {
-                auto& ins = impl_->query(
-                    "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
-                    "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-                ins.bind(1, id);
-                ins.bind(2, i.role);
-                ins.bind(3, i.identity);
-                ins.bind(4, i.asset);
-                ins.bind(5, i.uri);
-                ins.bind(6, i.cal_due);
-                ins.bind(7, i.certificate);
-                ins.bind(8, i.settings_json);
-                ins.exec();
-                ++added.instruments;
-            }
-            for (const auto& p : detail.probes) {
-                auto& pr = impl_->query(
-                    "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
-                    "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
-                pr.bind(1, id);
-                pr.bind(2, p.name);
-                pr.bind(3, p.channel);
-                pr.bind(4, p.asset);
-                pr.bind(5, p.ratio);
-                pr.bind(6, p.cal_due);
-                pr.bind(7, p.certificate);
-                pr.exec();
-                ++added.probes;
-            }
+            impl_->insert_instruments(id, detail.instruments);
+            impl_->insert_probes(id, detail.probes);
+            added.instruments = static_cast<std::int64_t>(detail.instruments.size());
+            added.probes = static_cast<std::int64_t>(detail.probes.size());
         }
 
         const std::string now = utc_iso(impl_->now());
@@ -212,24 +187,7 @@ CopyCounts SqliteArchive::copy_session(const SessionDetail& detail) {
             st.bind(2, p->uuid);
             st.bind(3, id);
             st.bind(4, p->sequence);
-            bind_optional(st, 5, p->plan_index);
-            st.bind(6, p->freq_hz);
-            bind_optional(st, 7, p->in_amplitude_v);
-            bind_optional(st, 8, p->in_amplitude_sd_v);
-            bind_optional(st, 9, p->in_phase_deg);
-            bind_optional(st, 10, p->in_phase_sd_deg);
-            bind_optional(st, 11, p->out_amplitude_v);
-            bind_optional(st, 12, p->out_amplitude_sd_v);
-            bind_optional(st, 13, p->out_phase_deg);
-            bind_optional(st, 14, p->out_phase_sd_deg);
-            st.bind(15, p->gain_db);
-            bind_optional(st, 16, p->gain_db_sd);
-            bind_optional(st, 17, p->phase_deg);
-            bind_optional(st, 18, p->phase_deg_sd);
-            bind_optional(st, 19, p->thd_pct);
-            st.bind(20, p->flags);
-            st.bind(21, p->settings_json);
-            st.bind(22, p->taken_utc);
+            bind_point_measurement(st, 5, *p);
             bind_optional(st, 23, mapped_superseded_by(*p));
             st.exec();
             ++added.points;
@@ -347,21 +305,7 @@ CopyCounts SqliteArchive::copy_lot(const Lot& lot, const std::string& session_uu
                 "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
             st.bind(1, d.uuid);
             st.bind(2, lot_id);
-            st.bind(3, d.index);
-            st.bind(4, d.readings_json);
-            bind_optional(st, 5, d.hfe);
-            bind_optional(st, 6, d.hfe_sd);
-            bind_optional(st, 7, d.vbe_v);
-            bind_optional(st, 8, d.vbe_sd_v);
-            bind_optional(st, 9, d.ic_a);
-            bind_optional(st, 10, d.ic_sd_a);
-            bind_optional(st, 11, d.vce_v);
-            bind_optional(st, 12, d.vce_sd_v);
-            if (d.passed)
-                st.bind(13, *d.passed ? 1 : 0);
-            else
-                st.bind(13);
-            st.bind(14, d.skipped_reason);
+            bind_device_readings(st, 3, d);
             st.exec();
             dest_id[d.uuid] = impl_->db->getLastInsertRowid();
             inserted.push_back(&d);
