@@ -508,6 +508,41 @@ void SqliteArchive::Impl::insert_probes(std::int64_t session_id,
     }
 }
 
+std::int64_t SqliteArchive::Impl::insert_fit(const FitRecord& f) {
+    auto& st = query(
+        "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
+        "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+    st.bind(1, f.uuid);
+    st.bind(2, f.session_id);
+    st.bind(3, f.kind);
+    st.bind(4, f.model);
+    st.bind(5, f.params_json);
+    st.bind(6, f.report_json);
+    bind_optional(st, 7, f.midband_gain_db);
+    bind_optional(st, 8, f.f_low_hz);
+    bind_optional(st, 9, f.f_high_hz);
+    st.bind(10, f.created_utc);
+    st.exec();
+    return db->getLastInsertRowid();
+}
+
+std::int64_t SqliteArchive::Impl::insert_lot(const Lot& l) {
+    auto& st = query(
+        "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, session_id, "
+        "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
+    st.bind(1, l.uuid);
+    st.bind(2, l.lot_code);
+    st.bind(3, l.plan_json);
+    st.bind(4, l.quantity);
+    st.bind(5, l.supplier);
+    st.bind(6, l.status);
+    bind_optional(st, 7, l.session_id);
+    st.bind(8, l.created_utc);
+    st.exec();
+    return db->getLastInsertRowid();
+}
+
 std::optional<Session> SqliteArchive::session(std::int64_t id) {
     return impl_->guarded([&] { return impl_->find_session(id); });
 }
@@ -632,22 +667,7 @@ FitRecord SqliteArchive::add_fit(const FitRecord& fit) {
         FitRecord f = fit;
         f.uuid = make_uuid_v4();
         f.created_utc = utc_iso(impl_->now());
-        auto& st = impl_->query(
-            "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
-            "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, f.uuid);
-        st.bind(2, f.session_id);
-        st.bind(3, f.kind);
-        st.bind(4, f.model);
-        st.bind(5, f.params_json);
-        st.bind(6, f.report_json);
-        bind_optional(st, 7, f.midband_gain_db);
-        bind_optional(st, 8, f.f_low_hz);
-        bind_optional(st, 9, f.f_high_hz);
-        st.bind(10, f.created_utc);
-        st.exec();
-        f.id = impl_->db->getLastInsertRowid();
+        f.id = impl_->insert_fit(f);
         txn.commit();
         return f;
     });
@@ -670,19 +690,7 @@ Lot SqliteArchive::add_lot(const Lot& lot) {
         Lot l = lot;
         l.uuid = make_uuid_v4();
         l.created_utc = utc_iso(impl_->now());
-        auto& st = impl_->query(
-            "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, session_id, "
-            "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, l.uuid);
-        st.bind(2, l.lot_code);
-        st.bind(3, l.plan_json);
-        st.bind(4, l.quantity);
-        st.bind(5, l.supplier);
-        st.bind(6, l.status);
-        bind_optional(st, 7, l.session_id);
-        st.bind(8, l.created_utc);
-        st.exec();
-        l.id = impl_->db->getLastInsertRowid();
+        l.id = impl_->insert_lot(l);
         txn.commit();
         return l;
     });

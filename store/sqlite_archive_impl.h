@@ -413,6 +413,9 @@ struct SqliteArchive::Impl {
     std::int64_t insert_session(const NewSession& in);
     void insert_instruments(std::int64_t session_id, const std::vector<InstrumentRecord>& list);
     void insert_probes(std::int64_t session_id, const std::vector<ProbeRecord>& list);
+    // Inside a write transaction: the row as given (UUID and times set); returns its id.
+    std::int64_t insert_fit(const FitRecord& fit);
+    std::int64_t insert_lot(const Lot& lot);
 
     std::vector<SessionSummary> summaries(const std::string& sql, const std::string& serial) {
         std::vector<SessionSummary> out;

@@ -200,21 +200,9 @@ CopyCounts SqliteArchive::copy_session(const SessionDetail& detail) {
             auto& known = impl_->query("SELECT 1 FROM fits WHERE uuid = ?");
             known.bind(1, f.uuid);
             if (known.executeStep()) continue;
-            auto& st = impl_->query(
-                "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
-                "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
-            st.bind(1, f.uuid);
-            st.bind(2, id);
-            st.bind(3, f.kind);
-            st.bind(4, f.model);
-            st.bind(5, f.params_json);
-            st.bind(6, f.report_json);
-            bind_optional(st, 7, f.midband_gain_db);
-            bind_optional(st, 8, f.f_low_hz);
-            bind_optional(st, 9, f.f_high_hz);
-            st.bind(10, f.created_utc);
-            st.exec();
+            FitRecord copy = f;
+            copy.session_id = id;
+            impl_->insert_fit(copy);
             ++added.fits;
         }
         txn.commit();
@@ -269,19 +257,9 @@ CopyCounts SqliteArchive::copy_lot(const Lot& lot, const std::string& session_uu
                 throw StoreError(fmt::format(
                     "archive {}: lot code {} is already used here by another lot ({})", path,
                     lot.lot_code, text(clash.getColumn(0))));
-            auto& st = impl_->query(
-                "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, "
-                "session_id, created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-            st.bind(1, lot.uuid);
-            st.bind(2, lot.lot_code);
-            st.bind(3, lot.plan_json);
-            st.bind(4, lot.quantity);
-            st.bind(5, lot.supplier);
-            st.bind(6, lot.status);
-            bind_optional(st, 7, session_id);
-            st.bind(8, lot.created_utc);
-            st.exec();
-            lot_id = impl_->db->getLastInsertRowid();
+            Lot copy = lot;
+            copy.session_id = session_id;
+            lot_id = impl_->insert_lot(copy);
             added.lots = 1;
         }
 
