@@ -44,6 +44,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     add_match_command(app, ctx);
     add_report_command(app, ctx);
     add_demo_command(app, ctx);
+    add_sync_command(app, ctx);
 
 
     try {

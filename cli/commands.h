@@ -21,5 +21,6 @@ void add_sweep_command(CLI::App& app, Context& ctx);
 void add_match_command(CLI::App& app, Context& ctx);
 void add_report_command(CLI::App& app, Context& ctx);
 void add_demo_command(CLI::App& app, Context& ctx);
+void add_sync_command(CLI::App& app, Context& ctx);
 
 }  // namespace ampbench::cli

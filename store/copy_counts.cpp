@@ -1,4 +1,4 @@
-// Adding up the rows copied by several copy_session / copy_lot calls.
+// CopyCounts: the per-table row counts of a sync, summed over sessions and lots.
 #include "store/archive.h"
 
 namespace ampbench::store {

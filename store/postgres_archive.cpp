@@ -3,6 +3,7 @@
 // bound parameters. Behaviour follows SqliteArchive method by method (same error texts); what
 // a server adds is session ownership by advisory lock.
 #include "store/postgres_archive.h"
+#include "store/sync_rules.h"
 
 #include <unistd.h>
 
@@ -1233,11 +1234,16 @@ CopyCounts PostgresArchive::Impl::copy_session(pqxx::transaction_base& t, const 
             "first",
             url, s.board_serial, s.uuid));
     std::int64_t id = 0;
-    if (const auto here = run(t, "SELECT id FROM sessions WHERE uuid = $1 FOR UPDATE", s.uuid);
+    if (const auto here = run(t, "SELECT id, status, finished_utc FROM sessions WHERE uuid = $1 FOR UPDATE", s.uuid);
         !here.empty()) {
-        id = Cols(here[0]).i64();
-        run(t, "UPDATE sessions SET status = $1, finished_utc = $2 WHERE id = $3",
-            to_string(s.status), text_or_null(s.finished_utc), id);
+        Cols c(here[0]);
+        id = c.i64();
+        const SessionStatus status_here = session_status_from(c.text());
+        const std::string finished_here = c.text();
+        // Status moves only forward (store/sync_rules.h), as on SQLite.
+        if (session_status_is_newer(s, status_here, finished_here))
+            run(t, "UPDATE sessions SET status = $1, finished_utc = $2 WHERE id = $3", to_string(s.status),
+                text_or_null(s.finished_utc), id);
     } else {
         const auto r = run(t,
                            "INSERT INTO sessions(uuid, board_id, kind, status, started_utc, "
@@ -1349,10 +1355,11 @@ CopyCounts PostgresArchive::Impl::copy_lot(pqxx::transaction_base& t, const Lot&
         session_id = Cols(r[0]).i64();
     }
     std::int64_t lot_id = 0;
-    if (const auto here = run(t, "SELECT id FROM lots WHERE uuid = $1 FOR UPDATE", lot.uuid);
+    if (const auto here = run(t, "SELECT id, status FROM lots WHERE uuid = $1 FOR UPDATE", lot.uuid);
         !here.empty()) {
-        lot_id = Cols(here[0]).i64();
-        run(t, "UPDATE lots SET status = $1 WHERE id = $2", lot.status, lot_id);
+        Cols c(here[0]);
+        lot_id = c.i64();
+        if (lot_status_is_newer(lot.status, c.text())) run(t, "UPDATE lots SET status = $1 WHERE id = $2", lot.status, lot_id);
     } else {
         const auto r = run(t,
                            "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, "

@@ -1,6 +1,7 @@
 // SqliteArchive: the archive on one SQLite file through SQLiteCpp. Every SQLite failure becomes
 // a StoreError naming the file; all SQL is fixed text with bound parameters.
 #include "store/sqlite_archive.h"
+#include "store/sqlite_archive_impl.h"
 
 #include <sys/stat.h>
 #include <unistd.h>
@@ -29,7 +30,7 @@
 
 namespace ampbench::store {
 
-namespace {
+namespace sqlite_detail {
 
 void bind_optional(SQLite::Statement& st, int index, const std::optional<double>& value) {
     if (value)
@@ -108,7 +109,7 @@ void check_file_header(const std::string& path) {
 
 const char* const session_columns = columns::session;
 
-Session read_session(SQLite::Statement& st, int first = 0) {
+Session read_session(SQLite::Statement& st, int first) {
     Session s;
     s.id = st.getColumn(first + 0).getInt64();
     s.uuid = text(st.getColumn(first + 1));
@@ -224,7 +225,46 @@ const char* const history_sql =
     "WHERE b.serial = ? "
     "ORDER BY s.started_utc DESC, s.id DESC";
 
-}  // namespace
+void bind_point_measurement(SQLite::Statement& st, int first, const Point& p) {
+    bind_optional(st, first, p.plan_index);
+    st.bind(first + 1, p.freq_hz);
+    bind_optional(st, first + 2, p.in_amplitude_v);
+    bind_optional(st, first + 3, p.in_amplitude_sd_v);
+    bind_optional(st, first + 4, p.in_phase_deg);
+    bind_optional(st, first + 5, p.in_phase_sd_deg);
+    bind_optional(st, first + 6, p.out_amplitude_v);
+    bind_optional(st, first + 7, p.out_amplitude_sd_v);
+    bind_optional(st, first + 8, p.out_phase_deg);
+    bind_optional(st, first + 9, p.out_phase_sd_deg);
+    st.bind(first + 10, p.gain_db);
+    bind_optional(st, first + 11, p.gain_db_sd);
+    bind_optional(st, first + 12, p.phase_deg);
+    bind_optional(st, first + 13, p.phase_deg_sd);
+    bind_optional(st, first + 14, p.thd_pct);
+    st.bind(first + 15, p.flags);
+    st.bind(first + 16, p.settings_json);
+    st.bind(first + 17, p.taken_utc);
+}
+
+void bind_device_readings(SQLite::Statement& st, int first, const Device& d) {
+    st.bind(first, d.index);
+    st.bind(first + 1, d.readings_json);
+    bind_optional(st, first + 2, d.hfe);
+    bind_optional(st, first + 3, d.hfe_sd);
+    bind_optional(st, first + 4, d.vbe_v);
+    bind_optional(st, first + 5, d.vbe_sd_v);
+    bind_optional(st, first + 6, d.ic_a);
+    bind_optional(st, first + 7, d.ic_sd_a);
+    bind_optional(st, first + 8, d.vce_v);
+    bind_optional(st, first + 9, d.vce_sd_v);
+    if (d.passed)
+        st.bind(first + 10, *d.passed ? 1 : 0);
+    else
+        st.bind(first + 10);
+    st.bind(first + 11, d.skipped_reason);
+}
+
+}  // namespace sqlite_detail
 
 const char* to_string(SessionKind kind) {
     switch (kind) {
@@ -260,394 +300,6 @@ SessionStatus session_status_from(const std::string& word) {
         if (word == to_string(s)) return s;
     throw StoreError(fmt::format("unknown session status '{}' in the archive", word));
 }
-
-struct SqliteArchive::Impl {
-    std::string path;
-    ArchiveOptions options;
-    std::string host;
-    std::int64_t pid = 0;
-    int version = 0;
-    std::unique_ptr<SQLite::Database> db;
-    std::unordered_map<std::string, std::unique_ptr<SQLite::Statement>> statements;
-
-    // A prepared statement, reset and with its bindings cleared.
-    SQLite::Statement& query(const std::string& sql) {
-        auto& slot = statements[sql];
-        if (!slot) slot = std::make_unique<SQLite::Statement>(*db, sql);
-        slot->reset();
-        slot->clearBindings();
-        return *slot;
-    }
-
-    double now() const {
-        if (options.clock_unix_s) return options.clock_unix_s();
-        using namespace std::chrono;
-        return duration<double>(system_clock::now().time_since_epoch()).count();
-    }
-
-    [[noreturn]] void fail(const SQLite::Exception& e) const {
-        const int code = e.getErrorCode() & 0xff;
-        if (code == SQLITE_BUSY || code == SQLITE_LOCKED)
-            throw StoreError(fmt::format(
-                "archive {}: busy for more than {} ms (another station is writing)", path,
-                options.busy_timeout_ms));
-        if (code == SQLITE_NOTADB)
-            throw StoreError(fmt::format("archive {}: not an ampbench archive ({})", path,
-                                         e.what()));
-        if (code == SQLITE_CORRUPT)
-            throw StoreError(fmt::format("archive {}: damaged ({})", path, e.what()));
-        throw StoreError(fmt::format("archive {}: {}", path, e.what()));
-    }
-
-    // A statement left mid-result would hold its read snapshot open, and a later BEGIN
-    // IMMEDIATE on a stale snapshot fails at once instead of waiting: reset them all.
-    void reset_statements() noexcept {
-        for (auto& [sql, st] : statements)
-            if (st) st->tryReset();
-    }
-
-    template <class F>
-    auto guarded(F&& f) -> decltype(f()) {
-        struct ResetOnExit {
-            Impl& impl;
-            ~ResetOnExit() { impl.reset_statements(); }
-        } reset_on_exit{*this};
-        try {
-            return f();
-        } catch (const SQLite::Exception& e) {
-            fail(e);
-        }
-    }
-
-    SQLite::Transaction write_transaction() {
-        return SQLite::Transaction(*db, SQLite::TransactionBehavior::IMMEDIATE);
-    }
-
-    void open() {
-        check_file_header(path);
-        db = std::make_unique<SQLite::Database>(
-            path, SQLite::OPEN_READWRITE | SQLite::OPEN_CREATE, options.busy_timeout_ms);
-        db->exec("PRAGMA foreign_keys = ON");
-        // A point is durable once append_point returns, even against power loss.
-        db->exec("PRAGMA synchronous = FULL");
-        const std::string mode = db->execAndGet("PRAGMA journal_mode = WAL").getString();
-        if (mode != "wal")
-            throw StoreError(fmt::format(
-                "archive {}: cannot switch to the WAL journal (got '{}'); is it on a network "
-                "file system?",
-                path, mode));
-        migrate();
-    }
-
-    int read_version() {
-        auto& tables = query(
-            "SELECT count(*), coalesce(sum(name = 'schema_version'), 0) FROM sqlite_master "
-            "WHERE type = 'table' AND name NOT LIKE 'sqlite_%'");
-        tables.executeStep();
-        const auto count = tables.getColumn(0).getInt64();
-        const auto has_version = tables.getColumn(1).getInt64();
-        tables.reset();
-        if (count == 0) return 0;
-        if (!has_version)
-            throw StoreError(fmt::format(
-                "archive {}: not an ampbench archive (a SQLite file without schema_version)",
-                path));
-        return static_cast<int>(db->execAndGet("SELECT coalesce(max(version), 0) FROM schema_version")
-                                    .getInt64());
-    }
-
-    void refuse_newer(int found) const {
-        if (found > current_schema_version())
-            throw StoreError(fmt::format(
-                "archive {}: written by a newer ampbench (schema version {}; this build "
-                "reads up to {}); upgrade ampbench to open it",
-                path, found, current_schema_version()));
-    }
-
-    void migrate() {
-        version = read_version();
-        refuse_newer(version);
-        if (version == current_schema_version()) return;
-        auto txn = write_transaction();
-        version = read_version();  // another station may have migrated meanwhile
-        refuse_newer(version);
-        for (const auto& m : migrations()) {
-            if (m.version <= version) continue;
-            db->exec(m.sqlite);
-            auto& st = query("INSERT INTO schema_version(version, applied_utc) VALUES (?, ?)");
-            st.bind(1, m.version);
-            st.bind(2, utc_iso(now()));
-            st.exec();
-            version = m.version;
-        }
-        txn.commit();
-    }
-
-    bool is_stale(const std::string& session_host, std::int64_t session_pid,
-                  double heartbeat_s) const {
-        return stale_session(host, session_host, session_pid, heartbeat_s, now(),
-                             options.stale_after_s);
-    }
-
-    int mark_stale() {
-        struct Candidate {
-            std::int64_t id;
-            std::string host;
-            std::int64_t pid;
-            double heartbeat_s;
-        };
-        auto find = [&] {
-            std::vector<Candidate> found;
-            auto& st = query(
-                "SELECT id, host, pid, heartbeat_unix_s FROM sessions "
-                "WHERE status = 'running' AND heartbeat_unix_s < ?");
-            st.bind(1, now() - options.stale_after_s);
-            while (st.executeStep())
-                found.push_back({st.getColumn(0).getInt64(), text(st.getColumn(1)),
-                                 st.getColumn(2).getInt64(), st.getColumn(3).getDouble()});
-            std::erase_if(found, [&](const Candidate& c) {
-                return !is_stale(c.host, c.pid, c.heartbeat_s);
-            });
-            return found;
-        };
-        // Look first without the write lock: most opens find nothing to do.
-        if (find().empty()) return 0;
-        auto txn = write_transaction();
-        int marked = 0;
-        for (const auto& c : find()) {
-            auto& st = query(
-                "UPDATE sessions SET status = 'interrupted' "
-                "WHERE id = ? AND status = 'running' AND heartbeat_unix_s = ?");
-            st.bind(1, c.id);
-            st.bind(2, c.heartbeat_s);
-            marked += st.exec();
-        }
-        txn.commit();
-        return marked;
-    }
-
-    std::optional<Board> find_board(const std::string& serial) {
-        auto& st = query(
-            "SELECT id, serial, design_address, notes, created_utc FROM boards WHERE serial = ?");
-        st.bind(1, serial);
-        if (!st.executeStep()) return std::nullopt;
-        Board b;
-        b.id = st.getColumn(0).getInt64();
-        b.serial = text(st.getColumn(1));
-        b.design_address = text(st.getColumn(2));
-        b.notes = text(st.getColumn(3));
-        b.created_utc = text(st.getColumn(4));
-        return b;
-    }
-
-    // Inside a write transaction.
-    Board ensure_board_locked(const std::string& serial, const std::string& design_address,
-                              const std::string& notes) {
-        if (serial.empty()) throw StoreError(fmt::format("archive {}: empty board serial", path));
-        if (!design_address.empty()) {
-            auto& d = query("SELECT 1 FROM designs WHERE address = ?");
-            d.bind(1, design_address);
-            if (!d.executeStep())
-                throw StoreError(fmt::format("archive {}: design {} is not in the archive", path,
-                                             design_address));
-        }
-        auto& insert = query(
-            "INSERT INTO boards(serial, design_address, notes, created_utc) VALUES (?, ?, ?, ?) "
-            "ON CONFLICT(serial) DO NOTHING");
-        insert.bind(1, serial);
-        bind_text_or_null(insert, 2, design_address);
-        insert.bind(3, notes);
-        insert.bind(4, utc_iso(now()));
-        if (insert.exec() == 0) {
-            if (!design_address.empty()) {
-                auto& st = query("UPDATE boards SET design_address = ? WHERE serial = ?");
-                st.bind(1, design_address);
-                st.bind(2, serial);
-                st.exec();
-            }
-            if (!notes.empty()) {
-                auto& st = query("UPDATE boards SET notes = ? WHERE serial = ?");
-                st.bind(1, notes);
-                st.bind(2, serial);
-                st.exec();
-            }
-        }
-        return *find_board(serial);
-    }
-
-    std::optional<Session> find_session(std::int64_t id) {
-        auto& st = query(std::string("SELECT ") + session_columns +
-                         " FROM sessions s JOIN boards b ON b.id = s.board_id WHERE s.id = ?");
-        st.bind(1, id);
-        if (!st.executeStep()) return std::nullopt;
-        return read_session(st);
-    }
-
-    Session require_session(std::int64_t id) {
-        auto s = find_session(id);
-        if (!s) throw StoreError(fmt::format("archive {}: no session {}", path, id));
-        return *s;
-    }
-
-    std::vector<PlanPoint> read_plan(std::int64_t session_id) {
-        std::vector<PlanPoint> plan;
-        auto& st = query(
-            "SELECT plan_index, freq_hz, adaptive FROM plan_points WHERE session_id = ? "
-            "ORDER BY plan_index");
-        st.bind(1, session_id);
-        while (st.executeStep())
-            plan.push_back({st.getColumn(0).getInt64(), st.getColumn(1).getDouble(),
-                            st.getColumn(2).getInt() != 0});
-        return plan;
-    }
-
-    std::vector<Point> read_points(std::int64_t session_id, bool current_only) {
-        std::vector<Point> points;
-        std::string sql = std::string("SELECT ") + point_columns +
-                          " FROM points WHERE session_id = ?" +
-                          (current_only ? " AND superseded_by IS NULL" : "") +
-                          " ORDER BY sequence";
-        auto& st = query(sql);
-        st.bind(1, session_id);
-        while (st.executeStep()) points.push_back(read_point(st));
-        return points;
-    }
-
-    std::vector<InstrumentRecord> read_instruments(std::int64_t session_id) {
-        std::vector<InstrumentRecord> out;
-        auto& st = query(
-            "SELECT role, identity, asset, uri, cal_due, certificate, settings_json "
-            "FROM instruments WHERE session_id = ? ORDER BY id");
-        st.bind(1, session_id);
-        while (st.executeStep())
-            out.push_back({text(st.getColumn(0)), text(st.getColumn(1)), text(st.getColumn(2)),
-                           text(st.getColumn(3)), text(st.getColumn(4)), text(st.getColumn(5)),
-                           text(st.getColumn(6))});
-        return out;
-    }
-
-    std::vector<ProbeRecord> read_probes(std::int64_t session_id) {
-        std::vector<ProbeRecord> out;
-        auto& st = query(
-            "SELECT name, channel, asset, ratio, cal_due, certificate FROM probes "
-            "WHERE session_id = ? ORDER BY id");
-        st.bind(1, session_id);
-        while (st.executeStep())
-            out.push_back({text(st.getColumn(0)), text(st.getColumn(1)), text(st.getColumn(2)),
-                           st.getColumn(3).getDouble(), text(st.getColumn(4)),
-                           text(st.getColumn(5))});
-        return out;
-    }
-
-    // Inside a write transaction; the session must be running.
-    void require_running(std::int64_t session_id) {
-        auto& st = query("SELECT status FROM sessions WHERE id = ?");
-        st.bind(1, session_id);
-        if (!st.executeStep())
-            throw StoreError(fmt::format("archive {}: no session {}", path, session_id));
-        const std::string status = text(st.getColumn(0));
-        if (status != "running")
-            throw StoreError(fmt::format(
-                "archive {}: session {} is {}; resume it before adding readings", path,
-                session_id, status));
-    }
-
-    // Inside a write transaction.
-    Point insert_point(std::int64_t session_id, const Point& in) {
-        if (!std::isfinite(in.freq_hz) || !std::isfinite(in.gain_db))
-            throw StoreError(fmt::format(
-                "archive {}: a reading needs a finite freq_hz and gain_db (got {} Hz, {} dB)",
-                path, in.freq_hz, in.gain_db));
-        Point p = in;
-        p.superseded_by.reset();
-        p.uuid = make_uuid_v4();
-        if (p.taken_utc.empty()) p.taken_utc = utc_iso(now());
-        auto& seq = query(
-            "SELECT coalesce(max(sequence), 0) + 1 FROM points WHERE session_id = ?");
-        seq.bind(1, session_id);
-        seq.executeStep();
-        p.sequence = seq.getColumn(0).getInt64();
-        seq.reset();
-        auto& next_id = query("SELECT coalesce(max(id), 0) + 1 FROM points");
-        next_id.executeStep();
-        p.id = next_id.getColumn(0).getInt64();
-        next_id.reset();
-        if (p.plan_index) {
-            auto& planned = query(
-                "SELECT 1 FROM plan_points WHERE session_id = ? AND plan_index = ?");
-            planned.bind(1, session_id);
-            planned.bind(2, *p.plan_index);
-            if (!planned.executeStep())
-                throw StoreError(fmt::format("archive {}: session {} has no planned point {}",
-                                             path, session_id, *p.plan_index));
-            // A retake: the earlier reading stays, marked as replaced by this one.
-            auto& supersede = query(
-                "UPDATE points SET superseded_by = ? "
-                "WHERE session_id = ? AND plan_index = ? AND superseded_by IS NULL");
-            supersede.bind(1, p.id);
-            supersede.bind(2, session_id);
-            supersede.bind(3, *p.plan_index);
-            supersede.exec();
-        }
-        auto& st = query(
-            "INSERT INTO points(id, uuid, session_id, sequence, plan_index, freq_hz, "
-            "in_amplitude_v, in_amplitude_sd_v, in_phase_deg, in_phase_sd_deg, out_amplitude_v, "
-            "out_amplitude_sd_v, out_phase_deg, out_phase_sd_deg, gain_db, gain_db_sd, "
-            "phase_deg, phase_deg_sd, thd_pct, flags, settings_json, taken_utc) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, p.id);
-        st.bind(2, p.uuid);
-        st.bind(3, session_id);
-        st.bind(4, p.sequence);
-        bind_optional(st, 5, p.plan_index);
-        st.bind(6, p.freq_hz);
-        bind_optional(st, 7, p.in_amplitude_v);
-        bind_optional(st, 8, p.in_amplitude_sd_v);
-        bind_optional(st, 9, p.in_phase_deg);
-        bind_optional(st, 10, p.in_phase_sd_deg);
-        bind_optional(st, 11, p.out_amplitude_v);
-        bind_optional(st, 12, p.out_amplitude_sd_v);
-        bind_optional(st, 13, p.out_phase_deg);
-        bind_optional(st, 14, p.out_phase_sd_deg);
-        st.bind(15, p.gain_db);
-        bind_optional(st, 16, p.gain_db_sd);
-        bind_optional(st, 17, p.phase_deg);
-        bind_optional(st, 18, p.phase_deg_sd);
-        bind_optional(st, 19, p.thd_pct);
-        st.bind(20, p.flags);
-        st.bind(21, p.settings_json);
-        st.bind(22, p.taken_utc);
-        st.exec();
-        return p;
-    }
-
-    void beat(std::int64_t session_id) {
-        auto& st = query("UPDATE sessions SET heartbeat_unix_s = ? WHERE id = ?");
-        st.bind(1, now());
-        st.bind(2, session_id);
-        st.exec();
-    }
-
-    // Inside a write transaction: the session row, its instruments and probes.
-    std::int64_t insert_session(const NewSession& in);
-
-    std::vector<SessionSummary> summaries(const std::string& sql, const std::string& serial) {
-        std::vector<SessionSummary> out;
-        auto& st = query(sql);
-        st.bind(1, serial);
-        while (st.executeStep()) {
-            SessionSummary s;
-            s.session = read_session(st);
-            s.point_count = st.getColumn(14).getInt64();
-            s.midband_gain_db = optional_double(st.getColumn(15));
-            s.f_low_hz = optional_double(st.getColumn(16));
-            s.f_high_hz = optional_double(st.getColumn(17));
-            out.push_back(std::move(s));
-        }
-        for (auto& s : out) s.instruments = read_instruments(s.session.id);
-        return out;
-    }
-};
 
 SqliteArchive::SqliteArchive(const std::string& path, const ArchiveOptions& options)
     : impl_(std::make_unique<Impl>()) {
@@ -777,11 +429,18 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
     st.bind(11, in.notes);
     st.exec();
     const std::int64_t id = db->getLastInsertRowid();
-    for (const auto& i : in.instruments) {
+    insert_instruments(id, in.instruments);
+    insert_probes(id, in.probes);
+    return id;
+}
+
+void SqliteArchive::Impl::insert_instruments(std::int64_t session_id,
+                                             const std::vector<InstrumentRecord>& list) {
+    for (const auto& i : list) {
         auto& ins = query(
             "INSERT INTO instruments(session_id, role, identity, asset, uri, cal_due, "
             "certificate, settings_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-        ins.bind(1, id);
+        ins.bind(1, session_id);
         ins.bind(2, i.role);
         ins.bind(3, i.identity);
         ins.bind(4, i.asset);
@@ -791,11 +450,15 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
         ins.bind(8, i.settings_json);
         ins.exec();
     }
-    for (const auto& p : in.probes) {
+}
+
+void SqliteArchive::Impl::insert_probes(std::int64_t session_id,
+                                        const std::vector<ProbeRecord>& list) {
+    for (const auto& p : list) {
         auto& pr = query(
             "INSERT INTO probes(session_id, name, channel, asset, ratio, cal_due, "
             "certificate) VALUES (?, ?, ?, ?, ?, ?, ?)");
-        pr.bind(1, id);
+        pr.bind(1, session_id);
         pr.bind(2, p.name);
         pr.bind(3, p.channel);
         pr.bind(4, p.asset);
@@ -804,7 +467,41 @@ std::int64_t SqliteArchive::Impl::insert_session(const NewSession& in) {
         pr.bind(7, p.certificate);
         pr.exec();
     }
-    return id;
+}
+
+std::int64_t SqliteArchive::Impl::insert_fit(const FitRecord& f) {
+    auto& st = query(
+        "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
+        "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+    st.bind(1, f.uuid);
+    st.bind(2, f.session_id);
+    st.bind(3, f.kind);
+    st.bind(4, f.model);
+    st.bind(5, f.params_json);
+    st.bind(6, f.report_json);
+    bind_optional(st, 7, f.midband_gain_db);
+    bind_optional(st, 8, f.f_low_hz);
+    bind_optional(st, 9, f.f_high_hz);
+    st.bind(10, f.created_utc);
+    st.exec();
+    return db->getLastInsertRowid();
+}
+
+std::int64_t SqliteArchive::Impl::insert_lot(const Lot& l) {
+    auto& st = query(
+        "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, session_id, "
+        "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
+    st.bind(1, l.uuid);
+    st.bind(2, l.lot_code);
+    st.bind(3, l.plan_json);
+    st.bind(4, l.quantity);
+    st.bind(5, l.supplier);
+    st.bind(6, l.status);
+    bind_optional(st, 7, l.session_id);
+    st.bind(8, l.created_utc);
+    st.exec();
+    return db->getLastInsertRowid();
 }
 
 std::optional<Session> SqliteArchive::session(std::int64_t id) {
@@ -931,22 +628,7 @@ FitRecord SqliteArchive::add_fit(const FitRecord& fit) {
         FitRecord f = fit;
         f.uuid = make_uuid_v4();
         f.created_utc = utc_iso(impl_->now());
-        auto& st = impl_->query(
-            "INSERT INTO fits(uuid, session_id, kind, model, params_json, report_json, "
-            "midband_gain_db, f_low_hz, f_high_hz, created_utc) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, f.uuid);
-        st.bind(2, f.session_id);
-        st.bind(3, f.kind);
-        st.bind(4, f.model);
-        st.bind(5, f.params_json);
-        st.bind(6, f.report_json);
-        bind_optional(st, 7, f.midband_gain_db);
-        bind_optional(st, 8, f.f_low_hz);
-        bind_optional(st, 9, f.f_high_hz);
-        st.bind(10, f.created_utc);
-        st.exec();
-        f.id = impl_->db->getLastInsertRowid();
+        f.id = impl_->insert_fit(f);
         txn.commit();
         return f;
     });
@@ -969,19 +651,7 @@ Lot SqliteArchive::add_lot(const Lot& lot) {
         Lot l = lot;
         l.uuid = make_uuid_v4();
         l.created_utc = utc_iso(impl_->now());
-        auto& st = impl_->query(
-            "INSERT INTO lots(uuid, lot_code, plan_json, quantity, supplier, status, session_id, "
-            "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?)");
-        st.bind(1, l.uuid);
-        st.bind(2, l.lot_code);
-        st.bind(3, l.plan_json);
-        st.bind(4, l.quantity);
-        st.bind(5, l.supplier);
-        st.bind(6, l.status);
-        bind_optional(st, 7, l.session_id);
-        st.bind(8, l.created_utc);
-        st.exec();
-        l.id = impl_->db->getLastInsertRowid();
+        l.id = impl_->insert_lot(l);
         txn.commit();
         return l;
     });
@@ -1029,21 +699,7 @@ Device SqliteArchive::add_device(const Device& device) {
             "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
         st.bind(1, d.uuid);
         st.bind(2, d.lot_id);
-        st.bind(3, d.index);
-        st.bind(4, d.readings_json);
-        bind_optional(st, 5, d.hfe);
-        bind_optional(st, 6, d.hfe_sd);
-        bind_optional(st, 7, d.vbe_v);
-        bind_optional(st, 8, d.vbe_sd_v);
-        bind_optional(st, 9, d.ic_a);
-        bind_optional(st, 10, d.ic_sd_a);
-        bind_optional(st, 11, d.vce_v);
-        bind_optional(st, 12, d.vce_sd_v);
-        if (d.passed)
-            st.bind(13, *d.passed ? 1 : 0);
-        else
-            st.bind(13);
-        st.bind(14, d.skipped_reason);
+        bind_device_readings(st, 3, d);
         bind_optional(st, 15, d.replacement_of);
         st.exec();
         d.id = impl_->db->getLastInsertRowid();

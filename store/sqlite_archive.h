@@ -61,7 +61,7 @@ public:
     std::vector<SessionSummary> history(const std::string& serial) override;
     SessionDetail session_detail(std::int64_t session_id) override;
 
-    // Sync (defined in store/sqlite_sync*.cpp).
+    // Defined in sqlite_sync.cpp.
     std::vector<Session> sessions() override;
     std::optional<Session> session_by_uuid(const std::string& uuid) override;
     CopyCounts copy_session(const SessionDetail& detail) override;

@@ -100,7 +100,7 @@ TEST_CASE("DC readings of a nominal board sit inside their tolerance bands", "[s
     }
 }
 
-TEST_CASE("--method amplitude measures magnitude only, with a wider uncertainty, and says so", "[sweep][amplitude]") {
+TEST_CASE("the amplitude method measures magnitude only, with a wider uncertainty, and says so", "[sweep][amplitude]") {
     CliTempDir dir;
     const nlohmann::json cap = sweep(dir, "PA1-2611-0302", "capture");
     const nlohmann::json amp = sweep(dir, "PA1-2611-0302", "amplitude");
