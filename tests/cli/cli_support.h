@@ -32,6 +32,9 @@ private:
 };
 
 void write_text(const std::string& path, const std::string& text);
+// One value from a SQLite archive by the sqlite3 shell, read-only (so a test never takes a lock
+// a running command needs); "" when the query fails (e.g. before the schema exists).
+std::string sqlite3_value(const std::string& db, const std::string& query);
 std::string read_text(const std::string& path);
 
 }  // namespace ampbench::cli::testing

@@ -27,22 +27,8 @@ using namespace ampbench::cli::testing;
 
 namespace {
 
-// One value from the archive by the sqlite3 shell (read-only, so the test never takes a lock
-// the sweep needs); "" when the query fails (e.g. before the schema exists).
-std::string sql(const std::string& db, const std::string& query) {
-    const std::string cmd = "sqlite3 -readonly -batch -noheader '" + db + "' \"" + query + "\" 2>/dev/null";
-    std::string out;
-    FILE* p = ::popen(cmd.c_str(), "r");
-    if (!p) return out;
-    char buf[4096];
-    for (size_t n; (n = std::fread(buf, 1, sizeof buf, p)) > 0;) out.append(buf, n);
-    ::pclose(p);
-    while (!out.empty() && (out.back() == '\n' || out.back() == '\r')) out.pop_back();
-    return out;
-}
-
 long sql_long(const std::string& db, const std::string& query) {
-    const std::string v = sql(db, query);
+    const std::string v = sqlite3_value(db, query);
     try {
         return v.empty() ? -1 : std::stol(v);
     } catch (const std::exception&) {
@@ -100,8 +86,8 @@ TEST_CASE("a sweep killed with SIGKILL resumes to exactly one current point per 
         REQUIRE(before_kill >= 4);
         REQUIRE(before_kill < planned);  // killed in the middle, not after the last point
     }
-    const std::string kept = sql(db, "SELECT group_concat(id || ':' || plan_index, ',') FROM points WHERE session_id = 1 AND superseded_by IS NULL");
-    CHECK(sql(db, "SELECT status FROM sessions WHERE id = 1") == "running");
+    const std::string kept = sqlite3_value(db, "SELECT group_concat(id || ':' || plan_index, ',') FROM points WHERE session_id = 1 AND superseded_by IS NULL");
+    CHECK(sqlite3_value(db, "SELECT status FROM sessions WHERE id = 1") == "running");
 
     // What a user runs after a crash.
     const CliResult off = run_cli({"off", bench});
@@ -121,7 +107,7 @@ TEST_CASE("a sweep killed with SIGKILL resumes to exactly one current point per 
     REQUIRE(resumed.code == 0);
     CHECK(resumed.out.find("board PA1-2611-0051") != std::string::npos);
 
-    CHECK(sql(db, "SELECT status FROM sessions WHERE id = 1") == "complete");
+    CHECK(sqlite3_value(db, "SELECT status FROM sessions WHERE id = 1") == "complete");
     const long planned = sql_long(db, "SELECT count(*) FROM plan_points WHERE session_id = 1");
     INFO("planned " << planned);
     REQUIRE(planned > before_kill);

@@ -23,6 +23,7 @@
 #include <nlohmann/json.hpp>
 
 #include "cli_support.h"
+#include "common/child_process.h"
 #include "lot_support.h"
 #include "store/archive.h"
 #include "store/sync_support.h"
@@ -37,19 +38,6 @@ const char* const tables[] = {"designs", "boards",      "sessions", "instruments
                               "plan_points", "points", "fits",     "lots",        "devices"};
 
 using Counts = std::map<std::string, long>;
-
-std::string sqlite3_value(const std::string& db, const std::string& query) {
-    const std::string cmd =
-        "sqlite3 -readonly -batch -noheader '" + db + "' \"" + query + "\" 2>/dev/null";
-    std::string out;
-    FILE* p = ::popen(cmd.c_str(), "r");
-    if (!p) return out;
-    char buf[256];
-    for (size_t n; (n = std::fread(buf, 1, sizeof buf, p)) > 0;) out.append(buf, n);
-    ::pclose(p);
-    while (!out.empty() && out.back() == '\n') out.pop_back();
-    return out;
-}
 
 bool is_url(const std::string& location) { return location.find("://") != std::string::npos; }
 
@@ -247,63 +235,6 @@ TEST_CASE("sync pushes a station archive once, then nothing, then only the new r
     });
 }
 
-namespace {
-
-// `ampbench sync ...` as a child with AMPBENCH_SYNC_PAUSE_MS set; stdout is read line by line.
-class SyncChild {
-public:
-    SyncChild(const std::string& from, const std::string& to, int pause_ms) {
-        int fds[2];
-        REQUIRE(::pipe(fds) == 0);
-        pid_ = ::fork();
-        REQUIRE(pid_ >= 0);
-        if (pid_ == 0) {
-            ::dup2(fds[1], STDOUT_FILENO);
-            ::close(fds[0]);
-            ::close(fds[1]);
-            ::setenv("AMPBENCH_SYNC_PAUSE_MS", std::to_string(pause_ms).c_str(), 1);
-            ::execl(AMPBENCH_EXE, AMPBENCH_EXE, "sync", "--from", from.c_str(), "--to",
-                    to.c_str(), static_cast<char*>(nullptr));
-            ::_exit(127);
-        }
-        ::close(fds[1]);
-        out_ = fds[0];
-    }
-    ~SyncChild() {
-        kill9();
-        ::close(out_);
-    }
-    SyncChild(const SyncChild&) = delete;
-    SyncChild& operator=(const SyncChild&) = delete;
-
-    // The next stdout line, "" at end of output or after two minutes.
-    std::string line() {
-        std::string s;
-        const auto give_up = std::chrono::steady_clock::now() + std::chrono::minutes(2);
-        while (std::chrono::steady_clock::now() < give_up) {
-            pollfd p{out_, POLLIN, 0};
-            if (::poll(&p, 1, 200) <= 0) continue;
-            char c;
-            if (::read(out_, &c, 1) != 1) break;
-            if (c == '\n') return s;
-            s += c;
-        }
-        return "";
-    }
-    void kill9() {
-        if (pid_ <= 0) return;
-        ::kill(pid_, SIGKILL);
-        ::waitpid(pid_, nullptr, 0);
-        pid_ = -1;
-    }
-
-private:
-    pid_t pid_ = -1;
-    int out_ = -1;
-};
-
-}  // namespace
-
 TEST_CASE("a sync killed with SIGKILL half way leaves whole sessions; a rerun completes it", "[cli][sync][sim]") {
     REQUIRE(std::system("command -v sqlite3 > /dev/null 2>&1") == 0);
     CliTempDir dir;
@@ -314,8 +245,9 @@ TEST_CASE("a sync killed with SIGKILL half way leaves whole sessions; a rerun co
     for_each_destination(dir, "cli_kill", [&](const std::string& central) {
         {
             // Paused a minute after each committed session: killed after the first.
-            SyncChild child(station, central, 60000);
-            const std::string first = child.line();
+            ampbench::testing::ChildProcess child(ampbench::testing::ampbench_argv({"sync", "--from", station, "--to", central}),
+                                                  {"", "", false, {"AMPBENCH_SYNC_PAUSE_MS=60000"}});
+            const std::string first = child.read_line();
             INFO(first);
             REQUIRE(first.rfind("synced session 1 ", 0) == 0);
             child.kill9();

@@ -38,7 +38,20 @@ ChildProcess::ChildProcess(const std::vector<std::string>& args, const ChildOutp
         posix_spawn_file_actions_addopen(&actions, STDOUT_FILENO, output.stdout_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
     }
     posix_spawn_file_actions_addopen(&actions, STDIN_FILENO, "/dev/null", O_RDONLY, 0);
-    const int rc = ::posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), environ);
+    // This process's environment with output.env laid over it.
+    std::vector<std::string> env_text;
+    for (char** e = environ; *e; ++e) {
+        const std::string entry = *e;
+        const std::string name = entry.substr(0, entry.find('='));
+        bool replaced = false;
+        for (const std::string& extra : output.env) replaced = replaced || extra.substr(0, extra.find('=')) == name;
+        if (!replaced) env_text.push_back(entry);
+    }
+    env_text.insert(env_text.end(), output.env.begin(), output.env.end());
+    std::vector<char*> envp;
+    for (auto& e : env_text) envp.push_back(e.data());
+    envp.push_back(nullptr);
+    const int rc = ::posix_spawn(&pid_, argv[0], &actions, nullptr, argv.data(), envp.data());
     posix_spawn_file_actions_destroy(&actions);
     if (fds[1] >= 0) ::close(fds[1]);
     out_fd_ = fds[0];

@@ -6,14 +6,19 @@
 #include <sys/types.h>
 
 #include <string>
+#include <utility>
 #include <vector>
 
 namespace ampbench::testing {
 
 struct ChildOutput {
-    std::string stdout_path;  // empty: a pipe, read with read_line()
-    std::string stderr_path;  // empty: /dev/null
+    std::string stdout_path;        // empty: a pipe, read with read_line()
+    std::string stderr_path;        // empty: /dev/null
     bool stdout_to_stderr = false;  // stdout into the stderr file (stdout_path ignored)
+    std::vector<std::string> env;   // "NAME=VALUE" set in the child on top of this environment
+
+    ChildOutput(std::string out = {}, std::string err = {}, bool out_to_err = false, std::vector<std::string> extra_env = {})
+        : stdout_path(std::move(out)), stderr_path(std::move(err)), stdout_to_stderr(out_to_err), env(std::move(extra_env)) {}
 };
 
 class ChildProcess {
