@@ -182,6 +182,7 @@ struct Problem {
     std::vector<Transform> transforms;  // per free parameter
     std::size_t m = 0;
     int evaluations = 0;
+    bool start_finite = false;  // the first evaluation (the optimiser's residuals at the start) was finite
 
     std::vector<double> params_of(const Eigen::VectorXd& u) const {
         std::vector<double> p = fixed_values;
@@ -225,6 +226,7 @@ struct Functor : Eigen::DenseFunctor<double> {
             fvec.setConstant(1e100 / std::sqrt(static_cast<double>(problem.m)));
             return 0;
         }
+        if (!started) problem.start_finite = problem.evaluations == 1;
         started = true;
         for (std::size_t i = 0; i < problem.m; ++i) fvec[static_cast<Eigen::Index>(i)] = r[i];
         return 0;
@@ -319,8 +321,16 @@ FitReport least_squares(const ResidualModel& model, const std::vector<Parameter>
         report.status = FitStatus::diverged;
         return report;
     }
-    report.residuals.assign(problem.m, 0.0);
-    model.residuals(p, report.residuals);
+    // The optimiser keeps the residuals of its accepted point (exactly the p above), once its
+    // first evaluation at the start succeeded; evaluating them again would cost one more model
+    // evaluation for the same numbers.
+    const Eigen::VectorXd& last = lm.fvec();
+    if (problem.start_finite && last.size() == static_cast<Eigen::Index>(problem.m)) {
+        report.residuals.assign(last.data(), last.data() + last.size());
+    } else {
+        report.residuals.assign(problem.m, 0.0);
+        model.residuals(p, report.residuals);
+    }
     report.rss = 0.0;
     for (double r : report.residuals) report.rss += r * r;
     if (!std::isfinite(report.rss) || report.rss >= 1e199) {

@@ -82,85 +82,84 @@ std::vector<std::string> rational_parameter_names(const RationalOrder& o) {
 std::complex<double> rational_log_response(const RationalOrder& o, double sign, const double* p, double f,
                                            std::complex<double>* d) {
     using C = std::complex<double>;
+    if (d) rational_log_derivatives(o, p, f, d);
     const C jf(0.0, f);
     C ln_h = p[0] / db_per_neper + (sign < 0 ? C(0.0, std::numbers::pi) : C(0.0));
-    if (d) d[0] = 1.0 / db_per_neper;
     std::size_t k = 1;
     const std::size_t zeros_at = 1 + static_cast<std::size_t>(o.low_poles);
     const int origin_zeros = o.low_poles - o.low_zeros;
     for (int i = 0; i < o.low_poles; ++i, ++k) {
-        const double pole = p[k];
-        const C den = jf + pole;
-        if (i < origin_zeros) {
-            ln_h += std::log(jf / den);
-        } else {
-            const std::size_t kz = zeros_at + static_cast<std::size_t>(i - origin_zeros);
-            const C num = jf + p[kz];
-            ln_h += std::log(num / den);
-            if (d) d[kz] = 1.0 / num;
-        }
-        if (d) d[k] = -1.0 / den;
+        const C den = jf + p[k];
+        const C num = i < origin_zeros ? jf : jf + p[zeros_at + static_cast<std::size_t>(i - origin_zeros)];
+        ln_h += std::log(num / den);
     }
     k += static_cast<std::size_t>(o.low_zeros);
-    for (int i = 0; i < o.high_poles; ++i, ++k) {
-        const C den = 1.0 + jf / p[k];
-        ln_h -= std::log(den);
-        if (d) d[k] = (jf / (p[k] * p[k])) / den;
-    }
+    for (int i = 0; i < o.high_poles; ++i, ++k) ln_h -= std::log(1.0 + jf / p[k]);
     for (int i = 0; i < o.complex_pairs; ++i, k += 2) {
-        const double f0 = p[k], q = p[k + 1], u = f / f0;
-        const C den(1.0 - u * u, u / q);
-        ln_h -= std::log(den);
-        if (d) {
-            // dD/d ln f0 = 2u² − j·u/Q and dD/d ln Q = −j·u/Q, divided by f0 and Q for d/dp.
-            d[k] = -C(2 * u * u, -u / q) / den / f0;
-            d[k + 1] = C(0.0, u / q) / den / q;
-        }
+        const double u = f / p[k];
+        ln_h -= std::log(C(1.0 - u * u, u / p[k + 1]));
     }
     return ln_h;
 }
 
-std::complex<double> rational_response(const RationalOrder& o, double sign, const double* p, double f,
-                                       std::complex<double>* d) {
+double rational_gain(double sign, const double* p) {
+    return std::pow(10.0, p[0] / 20.0) * (sign < 0 ? -1.0 : 1.0);
+}
+
+std::complex<double> rational_response_at_gain(const RationalOrder& o, double gain, const double* p, double f) {
     using C = std::complex<double>;
-    // One product instead of a sum of complex logarithms; the derivatives of ln H are the same
-    // terms as in rational_log_response and need no logarithm either.
+    // One product instead of a sum of complex logarithms.
     const C jf(0.0, f);
     C num = 1.0, den = 1.0;
-    if (d) d[0] = 1.0 / db_per_neper;
     std::size_t k = 1;
     const std::size_t zeros_at = 1 + static_cast<std::size_t>(o.low_poles);
     const int origin_zeros = o.low_poles - o.low_zeros;
     for (int i = 0; i < o.low_poles; ++i, ++k) {
-        const C dn = jf + p[k];
-        den *= dn;
-        if (i < origin_zeros) {
-            num *= jf;
-        } else {
-            const std::size_t kz = zeros_at + static_cast<std::size_t>(i - origin_zeros);
-            const C nz = jf + p[kz];
-            num *= nz;
-            if (d) d[kz] = 1.0 / nz;
-        }
-        if (d) d[k] = -1.0 / dn;
+        den *= jf + p[k];
+        num *= i < origin_zeros ? jf : jf + p[zeros_at + static_cast<std::size_t>(i - origin_zeros)];
     }
     k += static_cast<std::size_t>(o.low_zeros);
-    for (int i = 0; i < o.high_poles; ++i, ++k) {
-        const C dn = 1.0 + jf / p[k];
-        den *= dn;
-        if (d) d[k] = (jf / (p[k] * p[k])) / dn;
+    for (int i = 0; i < o.high_poles; ++i, ++k) den *= 1.0 + jf / p[k];
+    for (int i = 0; i < o.complex_pairs; ++i, k += 2) {
+        const double u = f / p[k];
+        den *= C(1.0 - u * u, u / p[k + 1]);
     }
+    return gain * num / den;
+}
+
+void rational_log_derivatives(const RationalOrder& o, const double* p, double f, std::complex<double>* d) {
+    using C = std::complex<double>;
+    // 1/z as conj(z)/|z|²: no overflow guard is needed for these factors (|z| stays between
+    // about 1e-150 and 1e150 for any corner and frequency the fits reach), and it avoids the
+    // scaled library division.
+    const auto inv = [](C z) { return std::conj(z) / std::norm(z); };
+    const C jf(0.0, f);
+    d[0] = 1.0 / db_per_neper;
+    std::size_t k = 1;
+    const std::size_t zeros_at = 1 + static_cast<std::size_t>(o.low_poles);
+    const int origin_zeros = o.low_poles - o.low_zeros;
+    for (int i = 0; i < o.low_poles; ++i, ++k) {
+        if (i >= origin_zeros) {
+            const std::size_t kz = zeros_at + static_cast<std::size_t>(i - origin_zeros);
+            d[kz] = inv(jf + p[kz]);
+        }
+        d[k] = -inv(jf + p[k]);
+    }
+    k += static_cast<std::size_t>(o.low_zeros);
+    for (int i = 0; i < o.high_poles; ++i, ++k) d[k] = (jf / (p[k] * p[k])) * inv(1.0 + jf / p[k]);
     for (int i = 0; i < o.complex_pairs; ++i, k += 2) {
         const double f0 = p[k], q = p[k + 1], u = f / f0;
-        const C dn(1.0 - u * u, u / q);
-        den *= dn;
-        if (d) {
-            d[k] = -C(2 * u * u, -u / q) / dn / f0;
-            d[k + 1] = C(0.0, u / q) / dn / q;
-        }
+        const C inv_den = inv(C(1.0 - u * u, u / q));
+        // dD/d ln f0 = 2u² − j·u/Q and dD/d ln Q = −j·u/Q, divided by f0 and Q for d/dp.
+        d[k] = -C(2 * u * u, -u / q) * inv_den / f0;
+        d[k + 1] = C(0.0, u / q) * inv_den / q;
     }
-    const double gain = std::pow(10.0, p[0] / 20.0) * (sign < 0 ? -1.0 : 1.0);
-    return gain * num / den;
+}
+
+std::complex<double> rational_response(const RationalOrder& o, double sign, const double* p, double f,
+                                       std::complex<double>* d) {
+    if (d) rational_log_derivatives(o, p, f, d);
+    return rational_response_at_gain(o, rational_gain(sign, p), p, f);
 }
 
 RationalResiduals::RationalResiduals(const GainData& data, RationalOrder order, double sign)
@@ -177,9 +176,10 @@ std::size_t RationalResiduals::residual_count() const {
 
 void RationalResiduals::residuals(std::span<const double> p, std::span<double> r) const {
     const std::size_t n = data_.points.size();
+    const double gain = rational_gain(sign_, p.data());
     for (std::size_t i = 0; i < n; ++i) {
         const GainPoint& pt = data_.points[i];
-        const std::complex<double> h = rational_response(order_, sign_, p.data(), pt.freq_hz);
+        const std::complex<double> h = rational_response_at_gain(order_, gain, p.data(), pt.freq_hz);
         r[i] = (10.0 * std::log10(std::norm(h)) - pt.gain_db) / sd_db_[i];
         if (data_.has_phase) r[n + i] = wrap_deg(std::arg(h) * deg_per_rad - pt.phase_deg) / sd_deg_[i];
     }
@@ -189,8 +189,7 @@ bool RationalResiduals::jacobian(std::span<const double> p, std::span<double> ja
     const std::size_t n = data_.points.size(), np = p.size();
     std::vector<std::complex<double>> d(np);
     for (std::size_t i = 0; i < n; ++i) {
-        std::fill(d.begin(), d.end(), 0.0);
-        rational_response(order_, sign_, p.data(), data_.points[i].freq_hz, d.data());
+        rational_log_derivatives(order_, p.data(), data_.points[i].freq_hz, d.data());
         for (std::size_t j = 0; j < np; ++j) {
             jac[i * np + j] = d[j].real() * db_per_neper / sd_db_[i];
             if (data_.has_phase) jac[(n + i) * np + j] = d[j].imag() * deg_per_rad / sd_deg_[i];

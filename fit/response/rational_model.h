@@ -43,6 +43,18 @@ std::complex<double> rational_log_response(const RationalOrder& order, double si
 std::complex<double> rational_response(const RationalOrder& order, double sign, const double* p,
                                        double freq_hz, std::complex<double>* dlog_dp = nullptr);
 
+// The signed linear gain ±10^(gain_db/20) of parameters p.
+double rational_gain(double sign, const double* p);
+
+// H(f) for a gain from rational_gain(): the value rational_response gives, without the power
+// for every frequency (loops over frequencies at fixed parameters).
+std::complex<double> rational_response_at_gain(const RationalOrder& order, double gain, const double* p,
+                                               double freq_hz);
+
+// d ln H / d p_j alone, every entry set: closed-form per factor, no product or logarithm.
+void rational_log_derivatives(const RationalOrder& order, const double* p, double freq_hz,
+                              std::complex<double>* dlog_dp);
+
 // Residuals on log magnitude (dB) and wrapped phase (degrees), each divided by its sd;
 // magnitude only when the data have no phase.
 class RationalResiduals : public ResidualModel {

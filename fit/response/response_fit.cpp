@@ -21,9 +21,19 @@ constexpr double db_per_neper = 20.0 / std::numbers::ln10;
 constexpr double half_power_db = 3.0102999566398120;  // 20·log10(√2)
 constexpr double search_low_hz = 0.01, search_high_hz = 1e9;
 
-double mag_db(const RationalOrder& o, double sign, const std::vector<double>& p, double f) {
-    return 10.0 * std::log10(std::norm(rational_response(o, sign, p.data(), f)));
-}
+// |H| in dB at fixed parameters, the signed linear gain computed once (the derived quantities
+// evaluate it at a thousand or more frequencies per parameter set).
+class Magnitude {
+public:
+    Magnitude(const RationalOrder& o, double sign, const std::vector<double>& p)
+        : order_(o), p_(p.data()), gain_(rational_gain(sign, p_)) {}
+    double operator()(double f) const { return 10.0 * std::log10(std::norm(rational_response_at_gain(order_, gain_, p_, f))); }
+
+private:
+    const RationalOrder& order_;
+    const double* p_;
+    double gain_;
+};
 
 // Log-interpolated −3 dB crossing of the data on one side of the maximum, or `fallback`.
 double data_crossing(const GainData& d, std::size_t peak, double level_db, int dir, double fallback) {
@@ -235,18 +245,18 @@ struct Derived {
 };
 
 // Frequency where |H| crosses `level_db` between f_in (above the level) and the search limit.
-std::optional<double> model_crossing(const RationalOrder& o, double sign, const std::vector<double>& p, double f_in,
-                                     double level_db, double limit_hz) {
+std::optional<double> model_crossing(const Magnitude& mag_db, double f_in, double level_db, double limit_hz) {
     const double step = limit_hz > f_in ? std::pow(10.0, 1.0 / 40) : std::pow(10.0, -1.0 / 40);
     double a = f_in;
     while ((limit_hz > f_in) ? a < limit_hz : a > limit_hz) {
         double b = a * step;
         b = limit_hz > f_in ? std::min(b, limit_hz) : std::max(b, limit_hz);
-        if (mag_db(o, sign, p, b) < level_db) {
+        if (mag_db(b) < level_db) {
             double lo = std::log(a), hi = std::log(b);
             for (int it = 0; it < 80; ++it) {
                 const double mid = 0.5 * (lo + hi);
-                (mag_db(o, sign, p, std::exp(mid)) < level_db ? hi : lo) = mid;
+                if (mid == lo || mid == hi) break;  // adjacent doubles: further halving changes nothing
+                (mag_db(std::exp(mid)) < level_db ? hi : lo) = mid;
             }
             return std::exp(0.5 * (lo + hi));
         }
@@ -255,40 +265,54 @@ std::optional<double> model_crossing(const RationalOrder& o, double sign, const 
     return std::nullopt;
 }
 
+// Golden-section search for the maximum of |H| in dB over ln f in [lo, hi], narrowed in place
+// (60 steps); returns the magnitudes at the two last inner points.
+std::pair<double, double> golden_peak(const Magnitude& mag_db, double& lo, double& hi) {
+    const double gr = (std::sqrt(5.0) - 1) / 2;
+    double x1 = hi - gr * (hi - lo), x2 = lo + gr * (hi - lo);
+    double g1 = mag_db(std::exp(x1)), g2 = mag_db(std::exp(x2));
+    for (int it = 0; it < 60; ++it) {
+        if (g1 > g2) {
+            hi = x2; x2 = x1; g2 = g1; x1 = hi - gr * (hi - lo); g1 = mag_db(std::exp(x1));
+        } else {
+            lo = x1; x1 = x2; g1 = g2; x2 = lo + gr * (hi - lo); g2 = mag_db(std::exp(x2));
+        }
+    }
+    return {g1, g2};
+}
+
+// The corners found (or not), the midband frequency, peaking and midband phase.
+void finish_derived(Derived& r, std::optional<double> fl, std::optional<double> fh, const Magnitude& mag_db,
+                    const RationalOrder& o, double sign, const std::vector<double>& p) {
+    r.has_low = fl.has_value();
+    r.has_high = fh.has_value();
+    r.f_low = fl.value_or(0.0);
+    r.f_high = fh.value_or(0.0);
+    r.f_mid = r.has_low && r.has_high ? std::sqrt(r.f_low * r.f_high) : r.f_peak;
+    r.peaking_db = r.peak_db - mag_db(r.f_mid);
+    r.mid_phase_deg = wrap_deg(rational_log_response(o, sign, p.data(), r.f_mid).imag() * 180.0 / std::numbers::pi);
+}
+
 Derived derive(const RationalOrder& o, double sign, const std::vector<double>& p, double f_min, double f_max) {
+    const Magnitude mag_db(o, sign, p);
     Derived r;
     const int grid = 400;
     const double lmin = std::log(f_min), lmax = std::log(f_max);
     int best = 0;
     double best_db = -INFINITY;
     for (int i = 0; i <= grid; ++i) {
-        const double g = mag_db(o, sign, p, std::exp(lmin + (lmax - lmin) * i / grid));
+        const double g = mag_db(std::exp(lmin + (lmax - lmin) * i / grid));
         if (g > best_db) best_db = g, best = i;
     }
     // Golden-section refinement of the maximum between the neighbouring grid points.
     double lo = lmin + (lmax - lmin) * std::max(best - 1, 0) / grid, hi = lmin + (lmax - lmin) * std::min(best + 1, grid) / grid;
-    const double gr = (std::sqrt(5.0) - 1) / 2;
-    double x1 = hi - gr * (hi - lo), x2 = lo + gr * (hi - lo);
-    double g1 = mag_db(o, sign, p, std::exp(x1)), g2 = mag_db(o, sign, p, std::exp(x2));
-    for (int it = 0; it < 60; ++it) {
-        if (g1 > g2) {
-            hi = x2; x2 = x1; g2 = g1; x1 = hi - gr * (hi - lo); g1 = mag_db(o, sign, p, std::exp(x1));
-        } else {
-            lo = x1; x1 = x2; g1 = g2; x2 = lo + gr * (hi - lo); g2 = mag_db(o, sign, p, std::exp(x2));
-        }
-    }
+    golden_peak(mag_db, lo, hi);
     r.f_peak = std::exp(0.5 * (lo + hi));
-    r.peak_db = std::max(best_db, mag_db(o, sign, p, r.f_peak));
+    r.peak_db = std::max(best_db, mag_db(r.f_peak));
     const double level = r.peak_db - half_power_db;
-    const auto fl = model_crossing(o, sign, p, r.f_peak, level, search_low_hz);
-    const auto fh = model_crossing(o, sign, p, r.f_peak, level, search_high_hz);
-    r.has_low = fl.has_value();
-    r.has_high = fh.has_value();
-    r.f_low = fl.value_or(0.0);
-    r.f_high = fh.value_or(0.0);
-    r.f_mid = r.has_low && r.has_high ? std::sqrt(r.f_low * r.f_high) : r.f_peak;
-    r.peaking_db = r.peak_db - mag_db(o, sign, p, r.f_mid);
-    r.mid_phase_deg = wrap_deg(rational_log_response(o, sign, p.data(), r.f_mid).imag() * 180.0 / std::numbers::pi);
+    const auto fl = model_crossing(mag_db, r.f_peak, level, search_low_hz);
+    const auto fh = model_crossing(mag_db, r.f_peak, level, search_high_hz);
+    finish_derived(r, fl, fh, mag_db, o, sign, p);
     return r;
 }
 
@@ -298,31 +322,23 @@ Derived derive(const RationalOrder& o, double sign, const std::vector<double>& p
 // crossing has left that bracket. About a sixth of the work of derive().
 Derived derive_near(const RationalOrder& o, double sign, const std::vector<double>& p, double f_min, double f_max,
                     const Derived& base) {
+    const Magnitude mag_db(o, sign, p);
     const double lmin = std::log(f_min), lmax = std::log(f_max), step = (lmax - lmin) / 400;
     Derived r;
     double lo = std::max(lmin, std::log(base.f_peak) - step), hi = std::min(lmax, std::log(base.f_peak) + step);
-    const double gr = (std::sqrt(5.0) - 1) / 2;
-    double x1 = hi - gr * (hi - lo), x2 = lo + gr * (hi - lo);
-    double g1 = mag_db(o, sign, p, std::exp(x1)), g2 = mag_db(o, sign, p, std::exp(x2));
-    for (int it = 0; it < 60; ++it) {
-        if (g1 > g2) {
-            hi = x2; x2 = x1; g2 = g1; x1 = hi - gr * (hi - lo); g1 = mag_db(o, sign, p, std::exp(x1));
-        } else {
-            lo = x1; x1 = x2; g1 = g2; x2 = lo + gr * (hi - lo); g2 = mag_db(o, sign, p, std::exp(x2));
-        }
-    }
+    const auto [g1, g2] = golden_peak(mag_db, lo, hi);
     r.f_peak = std::exp(0.5 * (lo + hi));
-    r.peak_db = std::max({mag_db(o, sign, p, r.f_peak), g1, g2});
+    r.peak_db = std::max({mag_db(r.f_peak), g1, g2});
     const double level = r.peak_db - half_power_db;
     auto crossing = [&](bool had, double f_base, double limit_hz) -> std::optional<double> {
-        if (!had) return model_crossing(o, sign, p, r.f_peak, level, limit_hz);
+        if (!had) return model_crossing(mag_db, r.f_peak, level, limit_hz);
         double a = std::log(f_base) - 0.01, b = std::log(f_base) + 0.01;
-        double fa = mag_db(o, sign, p, std::exp(a)) - level, fb = mag_db(o, sign, p, std::exp(b)) - level;
-        if (!((fa > 0) != (fb > 0))) return model_crossing(o, sign, p, r.f_peak, level, limit_hz);
+        double fa = mag_db(std::exp(a)) - level, fb = mag_db(std::exp(b)) - level;
+        if (!((fa > 0) != (fb > 0))) return model_crossing(mag_db, r.f_peak, level, limit_hz);
         int side = 0;
         for (int it = 0; it < 60 && std::abs(b - a) > 1e-14; ++it) {
             const double c = (a * fb - b * fa) / (fb - fa);
-            const double fc = mag_db(o, sign, p, std::exp(c)) - level;
+            const double fc = mag_db(std::exp(c)) - level;
             if (fc == 0) return std::exp(c);
             if ((fc > 0) == (fb > 0)) {
                 b = c; fb = fc;
@@ -339,13 +355,7 @@ Derived derive_near(const RationalOrder& o, double sign, const std::vector<doubl
     };
     const auto fl = crossing(base.has_low, base.f_low, search_low_hz);
     const auto fh = crossing(base.has_high, base.f_high, search_high_hz);
-    r.has_low = fl.has_value();
-    r.has_high = fh.has_value();
-    r.f_low = fl.value_or(0.0);
-    r.f_high = fh.value_or(0.0);
-    r.f_mid = r.has_low && r.has_high ? std::sqrt(r.f_low * r.f_high) : r.f_peak;
-    r.peaking_db = r.peak_db - mag_db(o, sign, p, r.f_mid);
-    r.mid_phase_deg = wrap_deg(rational_log_response(o, sign, p.data(), r.f_mid).imag() * 180.0 / std::numbers::pi);
+    finish_derived(r, fl, fh, mag_db, o, sign, p);
     return r;
 }
 
