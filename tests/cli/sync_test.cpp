@@ -27,6 +27,7 @@
 #include "lot_support.h"
 #include "store/archive.h"
 #include "store/sync_support.h"
+#include "test_backend.h"
 
 using namespace ampbench;
 using namespace ampbench::cli::testing;
@@ -78,17 +79,12 @@ Counts minus(const Counts& a, const Counts& b) {
 }
 
 // Runs `body` with an empty destination location of each backend available.
-void for_each_destination(const CliTempDir& dir, const std::string& tag,
-                          const std::function<void(const std::string&)>& body) {
+void for_each_destination(const CliTempDir& dir, const std::function<void(const std::string&)>& body) {
     SECTION("destination: SQLite") { body(dir.path("central.sqlite")); }
     SECTION("destination: PostgreSQL") {
-        const auto server = st::testing::test_pg_server();
-        if (!server) {
-            WARN("SKIPPED: AMPBENCH_TEST_PG is not set; the PostgreSQL destination did not run");
-            return;
-        }
-        st::testing::TestPgDatabase db(*server, tag);
-        body(db.url());
+        // A database of its own on the $AMPBENCH_TEST_PG cluster (tests/support/test_backend.h).
+        AMPBENCH_POSTGRES_ONLY(pg);
+        body(pg.location());
     }
 }
 
@@ -162,7 +158,7 @@ TEST_CASE("sync pushes a station archive once, then nothing, then only the new r
         resumed_id = s.id;
     }
 
-    for_each_destination(dir, "cli_sync", [&](const std::string& central) {
+    for_each_destination(dir, [&](const std::string& central) {
         // A dry run counts everything and writes nothing (not even the file).
         const auto dry = sync_json(station, central, true);
         CHECK(dry["dry_run"] == true);
@@ -235,14 +231,14 @@ TEST_CASE("sync pushes a station archive once, then nothing, then only the new r
     });
 }
 
-TEST_CASE("a sync killed with SIGKILL half way leaves whole sessions; a rerun completes it", "[cli][sync][sim]") {
+TEST_CASE("a sync killed with SIGKILL half way leaves whole sessions and a rerun completes it", "[cli][sync][sim]") {
     REQUIRE(std::system("command -v sqlite3 > /dev/null 2>&1") == 0);
     CliTempDir dir;
     const std::string station = build_station(dir, 3);
     const Counts source = table_counts(station);
     REQUIRE(source.at("sessions") == 4);  // three sweeps and the lot's session
 
-    for_each_destination(dir, "cli_kill", [&](const std::string& central) {
+    for_each_destination(dir, [&](const std::string& central) {
         {
             // Paused a minute after each committed session: killed after the first.
             ampbench::testing::ChildProcess child(ampbench::testing::ampbench_argv({"sync", "--from", station, "--to", central}),

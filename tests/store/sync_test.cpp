@@ -15,6 +15,7 @@
 #include "store/archive.h"
 #include "store_support.h"
 #include "sync_support.h"
+#include "test_backend.h"
 
 using namespace ampbench;
 using namespace ampbench::store;
@@ -23,21 +24,16 @@ using testing::TempDir;
 namespace {
 
 // Runs `body` with a fresh destination archive of each backend available.
-void for_each_destination(const std::string& tag,
-                          const std::function<void(Archive& dest)>& body) {
+void for_each_destination(const std::function<void(Archive& dest)>& body) {
     SECTION("destination: SQLite") {
         TempDir dir;
         auto dest = open_archive(dir.path("central.sqlite"));
         body(*dest);
     }
     SECTION("destination: PostgreSQL") {
-        const auto server = testing::test_pg_server();
-        if (!server) {
-            WARN("SKIPPED: AMPBENCH_TEST_PG is not set; the PostgreSQL destination did not run");
-            return;
-        }
-        testing::TestPgDatabase db(*server, tag);
-        auto dest = open_archive(db.url());
+        // A database of its own on the $AMPBENCH_TEST_PG cluster (tests/support/test_backend.h).
+        AMPBENCH_POSTGRES_ONLY(pg);
+        auto dest = open_archive(pg.location());
         body(*dest);
     }
 }
@@ -146,7 +142,7 @@ TEST_CASE("copy_session moves a session whole, once, and later only what is new"
     station->add_fit(fit);
     station->finish_session(s.id, SessionStatus::interrupted);
 
-    for_each_destination("copy_session", [&](Archive& central) {
+    for_each_destination([&](Archive& central) {
         copy_board(*station, central, "PA1-2611-0201");
         const SessionDetail first = station->session_detail(s.id);
         const CopyCounts added = central.copy_session(first);
@@ -202,7 +198,7 @@ TEST_CASE("a copy that fails part way leaves nothing of the session", "[store][s
     SessionDetail damaged = station->session_detail(s.id);
     damaged.points.back().gain_db = std::numeric_limits<double>::quiet_NaN();
 
-    for_each_destination("copy_fails", [&](Archive& central) {
+    for_each_destination([&](Archive& central) {
         // No board at the destination yet: refused before anything is written.
         CHECK_THROWS_AS(central.copy_session(station->session_detail(s.id)), StoreError);
         copy_board(*station, central, "PA1-2611-0202");
@@ -246,7 +242,7 @@ TEST_CASE("copy_lot moves a lot with its devices and replacement links, once", "
     replacement.replacement_of = second.id;
     station->add_device(replacement);
 
-    for_each_destination("copy_lot", [&](Archive& central) {
+    for_each_destination([&](Archive& central) {
         copy_board(*station, central, "LOT-2611-BC7");
         central.copy_session(station->session_detail(s.id));
         const CopyCounts added =
