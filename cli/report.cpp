@@ -29,7 +29,7 @@ int run_report(Context& ctx, const ReportArgs& a) {
         std::vector<procedures::MatchRow> rows;
         for (const store::Point& p : detail.points)
             if (!p.superseded_by)
-                rows.push_back({p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.0), p.phase_deg.value_or(0.0), p.phase_deg_sd.value_or(0.0)});
+                rows.push_back(procedures::match_row(p));
         ctx.out << fmt::format("match session {} · {} · {} · taken {}\n", detail.session.id, detail.session.board_serial,
                                store::to_string(detail.session.status), detail.session.started_utc)
                 << report::match_table(rows);

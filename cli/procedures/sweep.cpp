@@ -398,7 +398,6 @@ void Sweeper::measure_plan(const std::vector<store::PlanPoint>& todo, size_t tot
         Reading first = measure_point(f);
         // Settled (§5): two successive readings agree within their uncertainty; a waveform
         // capture holds two of them (its halves), the amplitude method needs two captures.
-        Reading r = first;
         const int wanted = std::max(o_.captures, 1);
         std::vector<Reading> taken{first};
         auto settled = [&] {
@@ -417,7 +416,7 @@ void Sweeper::measure_plan(const std::vector<store::PlanPoint>& todo, size_t tot
         }
         // The last `captures` readings, averaged.
         const size_t n = std::min(taken.size(), static_cast<size_t>(std::max(1, o_.captures)));
-        r = taken.back();
+        Reading r = taken.back();
         if (n > 1) {
             double ratio = 0, phase = 0, in_amp = 0, out_amp = 0, thd = 0;
             for (size_t i = taken.size() - n; i < taken.size(); ++i)
@@ -498,7 +497,7 @@ void Sweeper::load_match(const std::string& scope_identity) {
         c.use.taken_utc = s.session.started_utc;
         for (const store::Point& p : d.points)
             if (!p.superseded_by && p.phase_deg)
-                c.rows.push_back({p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.0), *p.phase_deg, p.phase_deg_sd.value_or(0.0)});
+                c.rows.push_back(match_row(p));
         std::sort(c.rows.begin(), c.rows.end(), [](const MatchRow& a, const MatchRow& b) { return a.freq_hz < b.freq_hz; });
         if (c.rows.size() < 2) continue;
         match_ = std::move(c);
@@ -588,7 +587,7 @@ MatchOutcome Sweeper::run_match(const MatchOptions& m) {
     result.session_id = session_id_;
     result.scope_serial = ns.board_serial;
     for (const auto& [index, p] : current_)
-        result.rows.push_back({p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.0), p.phase_deg.value_or(0.0), p.phase_deg_sd.value_or(0.0)});
+        result.rows.push_back(match_row(p));
     if (vclock_) result.virtual_s = vclock_->now_s();
     return result;
 }
@@ -797,6 +796,10 @@ SweepOutcome run_sweep(const SweepOptions& options, store::Archive& archive, std
     if (std::string why = options.validate(); !why.empty()) throw UsageError(why);
     Sweeper s(options, archive, out, progress, in);
     return s.run();
+}
+
+MatchRow match_row(const store::Point& p) {
+    return {p.freq_hz, p.gain_db, p.gain_db_sd.value_or(0.0), p.phase_deg.value_or(0.0), p.phase_deg_sd.value_or(0.0)};
 }
 
 std::string match_serial(const std::string& scope_identity) {

@@ -95,6 +95,9 @@ struct MatchRow {
     double freq_hz = 0, gain_db = 0, gain_db_sd = 0, phase_deg = 0, phase_deg_sd = 0;
 };
 
+// A stored match-run reading as a mismatch row (a missing phase or sd reads as 0).
+MatchRow match_row(const store::Point& p);
+
 struct MatchOutcome {
     std::int64_t session_id = 0;
     std::string scope_serial;  // the board serial the run is stored under
