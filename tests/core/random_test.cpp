@@ -8,7 +8,7 @@
 
 using ampbench::Random;
 
-TEST_CASE("same seed gives the same sequence; another seed another", "[core][random]") {
+TEST_CASE("same seed gives the same sequence and another seed another", "[core][random]") {
     Random a(7), b(7), c(8);
     std::vector<double> xa, xb, xc;
     for (int i = 0; i < 100; ++i) {

@@ -109,7 +109,7 @@ TEST_CASE("settling is real after a large frequency step", "[sim][settling]") {
     CHECK(differs(later, late) < 0.005);
 }
 
-TEST_CASE("same seed, same captures bit for bit; another seed, another board", "[sim][seed]") {
+TEST_CASE("same seed, same captures bit for bit, and another seed another board", "[sim][seed]") {
     auto run = [](const char* uri) {
         Rig rig(uri);
         rig.power_up();

@@ -10,7 +10,7 @@
 using namespace ampbench::circuit;
 using ampbench::testing::sample_design;
 
-TEST_CASE("the same seed gives the same band; another seed another", "[circuit][tolerance]") {
+TEST_CASE("the same seed gives the same band and another seed another", "[circuit][tolerance]") {
     const Design d = load_design(sample_design("pa1"));
     ToleranceOptions opt;
     opt.runs = 120;
